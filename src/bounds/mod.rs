@@ -1,0 +1,1 @@
+//! The bounds of `docs/method.md`: pure functions, no I/O.

@@ -1,0 +1,1 @@
+//! The certificate: canonical JSON (RFC 8785), SHA-256 digests, body and envelope.

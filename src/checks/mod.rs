@@ -1,0 +1,1 @@
+//! Consistency of the data with the noise record (bounds.md §6).

@@ -1,0 +1,70 @@
+//! The command line: parse, dispatch, print, and map outcomes to exit codes.
+//!
+//! Exit codes are a contract (formats.md): 0 success; 1 bad input or I/O error; 2 usage error
+//! (clap's own); 3 the work ran but the answer is negative. A broken pipe on standard output is
+//! not an error.
+
+pub mod args;
+pub mod inspect;
+pub mod simulate;
+
+use std::io::Write;
+use std::process::ExitCode;
+
+use clap::Parser;
+
+use args::{Cli, Command};
+
+/// What a command that ran to the end found.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Outcome {
+    /// Exit 0.
+    Success,
+    /// Exit 3: the work ran but the answer is negative.
+    Negative,
+}
+
+/// Exit code for a bad input or an I/O error.
+pub const EXIT_INPUT: u8 = 1;
+/// Exit code for a usage error.
+pub const EXIT_USAGE: u8 = 2;
+/// Exit code for a negative answer.
+pub const EXIT_NEGATIVE: u8 = 3;
+
+/// Runs the program and returns its exit code (formats.md, "Exit codes").
+pub fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            let code = if e.use_stderr() { EXIT_USAGE } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    let result = match &cli.command {
+        Command::Inspect(a) => inspect::run(a),
+        Command::Simulate(a) => simulate::run(a),
+    };
+    match result {
+        Ok(Outcome::Success) => ExitCode::SUCCESS,
+        Ok(Outcome::Negative) => ExitCode::from(EXIT_NEGATIVE),
+        Err(e) => {
+            let _ = writeln!(std::io::stderr(), "error: {e}");
+            ExitCode::from(EXIT_INPUT)
+        }
+    }
+}
+
+/// Writes `text` to standard output; a closed pipe (`quassay inspect run.h5 | head`) is not an
+/// error, any other failure is.
+pub fn print_stdout(text: &str) -> crate::Result<()> {
+    let mut out = std::io::stdout().lock();
+    match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
+        Ok(()) => Ok(()),
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        Err(e) => Err(crate::Error::Write {
+            path: "<standard output>".into(),
+            message: e.to_string(),
+        }),
+    }
+}

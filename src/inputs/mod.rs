@@ -1,0 +1,7 @@
+//! Readers for the three kinds of input: run files, noise records and scenarios.
+//!
+//! Readers never open a file for writing, collect every problem of a file before failing, and
+//! return checked models from [`crate::model`].
+
+pub mod noise_record;
+pub mod run_file;

@@ -1,0 +1,1 @@
+//! Reader for noise records (JSON, format `quassay-noise` v1).

@@ -1,0 +1,24 @@
+//! quassay: rigorous, explicit-constant error bounds for analog quantum simulation data.
+//!
+//! The modules follow the data's path through the tool:
+//!
+//! * [`inputs`]: reading run files (HDF5), noise records (JSON) and simulation scenarios;
+//! * [`model`]: the checked, typed model of a run, its lattice and its noise;
+//! * [`bounds`]: the pure mathematics of `docs/method.md` (no I/O);
+//! * [`checks`]: statistical consistency of the data with the noise record;
+//! * [`certificate`]: canonical JSON, hashing and the certificate itself;
+//! * [`outputs`]: writing files atomically (runs, records, certificates);
+//! * [`simulate`]: exact state-vector simulation that produces synthetic runs;
+//! * [`cli`]: the command line, kept thin.
+
+pub mod bounds;
+pub mod certificate;
+pub mod checks;
+pub mod cli;
+pub mod error;
+pub mod inputs;
+pub mod model;
+pub mod outputs;
+pub mod simulate;
+
+pub use error::{Error, InputKind, Problem};

@@ -1,0 +1,1 @@
+//! Exact state-vector simulation of noisy runs, for examples and tests.
