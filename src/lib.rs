@@ -21,4 +21,4 @@ pub mod model;
 pub mod outputs;
 pub mod simulate;
 
-pub use error::{Error, InputKind, Problem};
+pub use error::{Error, InputKind, Problem, Result};
