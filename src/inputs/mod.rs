@@ -5,3 +5,4 @@
 
 pub mod noise_record;
 pub mod run_file;
+pub mod scenario;

@@ -5,3 +5,6 @@
 //! written file and a failure leaves nothing behind.
 
 pub mod atomic;
+pub mod noise_record;
+pub mod run_file;
+pub mod truth_file;

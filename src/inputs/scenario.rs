@@ -1,0 +1,1 @@
+//! Reader for simulation scenarios (JSON, format `quassay-scenario` v1).

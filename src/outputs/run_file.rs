@@ -1,0 +1,1 @@
+//! Writer for run files (HDF5, layout `quassay-run` v1).

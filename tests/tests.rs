@@ -1,0 +1,7 @@
+//! Integration tests: one binary, one module per area (ripgrep's layout).
+
+mod util;
+
+mod noise_record;
+mod run_file;
+mod simulate;
