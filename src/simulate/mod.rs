@@ -13,3 +13,4 @@
 pub mod hamiltonian;
 pub mod pauli;
 pub mod propagate;
+pub mod sample;
