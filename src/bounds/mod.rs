@@ -1,1 +1,13 @@
 //! The bounds of `docs/method.md`: pure functions, no I/O.
+//!
+//! * [`family`]: per-family constants and the bias generating function (§2);
+//! * [`global`]: the global bounds at one (time, observable) point (§3), written on per-source
+//!   sensitivities so that the light-cone version (§5) can reuse them;
+//! * [`confidence`]: splitting the user's confidence into the noise and shot parts, Bonferroni;
+//! * [`fidelity`]: the fidelity lower bound (§4);
+//! * [`quantiles`]: standard-normal quantiles;
+//! * [`special`]: the error function and the normal tail, accurate to a few ulps.
+
+pub mod family;
+pub mod quantiles;
+pub mod special;
