@@ -1,1 +1,204 @@
-//! Reader for run files (HDF5, layout `quassay-run` v1).
+//! Reader for run files (HDF5, layout `quassay-run` v1; formats.md, docs/run-format.md).
+//!
+//! [`inspect_run`] reads everything it can, collects every problem of the layout (each with its
+//! HDF5 path and the fix) and a summary of what it found; [`read_run`] is the same but returns
+//! the checked [`Run`] or fails with all the problems at once. The file is opened read-only and
+//! never written. HDF5's own error printing is silenced: every failure becomes a [`Problem`].
+//!
+//! The pieces: `access` (typed reads that tolerate the usual storage variants), `checks` (the
+//! pure rules), `layout` (root, times, lattice, Hamiltonian) and `observables`.
+
+mod access;
+mod checks;
+mod layout;
+mod observables;
+
+use std::path::{Path, PathBuf};
+
+use serde::Serialize;
+
+use crate::error::{Error, InputKind, Problem, Result};
+use crate::model::Run;
+
+pub use checks::{range_tolerance, valid_name};
+
+/// What `inspect` shows of a run file: whatever could be read, even from a file with problems.
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+pub struct RunSummary {
+    /// Root attribute `format`.
+    pub format: Option<String>,
+    /// Root attribute `format_version`.
+    pub format_version: Option<i64>,
+    /// Root attribute `run_id`.
+    pub run_id: Option<String>,
+    /// Root attribute `description`.
+    pub description: Option<String>,
+    /// Root attribute `time_unit`, as written.
+    pub time_unit: Option<String>,
+    /// Root attribute `n_sites`.
+    pub n_sites: Option<u64>,
+    /// `/lattice`.
+    pub lattice: LatticeSummary,
+    /// `/times`.
+    pub times: Option<TimesSummary>,
+    /// Realizations R (rows of `values`) of the first observable that has readable values.
+    pub realizations: Option<usize>,
+    /// `/hamiltonian`.
+    pub hamiltonian: HamiltonianSummary,
+    /// The observables, sorted by name.
+    pub observables: Vec<ObservableSummary>,
+}
+
+/// What was read of `/lattice`.
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+pub struct LatticeSummary {
+    pub geometry: Option<String>,
+    pub shape: Option<Vec<u64>>,
+    pub boundary: Option<String>,
+    /// Number of bonds (from the geometry, or the rows of `/lattice/bonds` for a graph).
+    pub n_bonds: Option<usize>,
+    /// Whether `/lattice/bonds` is present.
+    pub bonds_stored: bool,
+}
+
+/// What was read of `/times`.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TimesSummary {
+    /// T, the number of times.
+    pub count: usize,
+    pub first: Option<f64>,
+    pub last: Option<f64>,
+    /// `float64`, `float32`, ...
+    pub stored_as: String,
+}
+
+/// What was read of `/hamiltonian`.
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+pub struct HamiltonianSummary {
+    pub energy_unit: Option<String>,
+    pub bond_norm_max: Option<f64>,
+    /// `[smallest, largest]` of `/hamiltonian/bond_norms`, if present.
+    pub bond_norms_range: Option<[f64; 2]>,
+    /// The value in force (1 when the attribute is absent).
+    pub interaction_range: Option<i64>,
+}
+
+/// What was read of one `/observables/<name>` group.
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
+pub struct ObservableSummary {
+    pub name: String,
+    /// `[R, T]` of `values`.
+    pub shape: Option<[usize; 2]>,
+    /// `float64`, `float32`, ... of `values`.
+    pub stored_as: Option<String>,
+    /// Sites (sorted); empty means global.
+    pub support: Option<Vec<usize>>,
+    pub spectrum_min: Option<f64>,
+    pub spectrum_max: Option<f64>,
+    pub shots: Option<ShotsSummary>,
+    pub has_stderr: bool,
+    pub has_ideal: bool,
+    /// Number of terms A, when a term structure is present.
+    pub terms: Option<usize>,
+    pub description: Option<String>,
+}
+
+/// Shots of one observable: one attribute, or a dataset and its range.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ShotsSummary {
+    /// Whether shots are given per point (dataset) rather than once (attribute).
+    pub per_point: bool,
+    pub min: i64,
+    pub max: i64,
+}
+
+/// The result of reading a run file as far as possible.
+#[derive(Debug, Clone)]
+pub struct RunInspection {
+    /// The file read.
+    pub file: PathBuf,
+    /// Whatever could be read.
+    pub summary: RunSummary,
+    /// Every problem of the layout, in reading order.
+    pub problems: Vec<Problem>,
+    /// Items that are not part of layout v1 and were ignored (not errors).
+    pub notes: Vec<Problem>,
+    /// The checked run, when there are no problems.
+    pub run: Option<Run>,
+}
+
+impl RunInspection {
+    /// The checked run, or [`Error::Input`] with every problem.
+    pub fn into_run(self) -> Result<Run> {
+        match self.run {
+            Some(run) if self.problems.is_empty() => Ok(run),
+            _ => Err(Error::Input {
+                kind: InputKind::Run,
+                file: self.file,
+                problems: self.problems,
+            }),
+        }
+    }
+}
+
+/// Reads and checks a run file; fails with every problem of its layout at once.
+pub fn read_run(path: &Path) -> Result<Run> {
+    inspect_run(path)?.into_run()
+}
+
+/// Reads a run file as far as possible, collecting every problem.
+///
+/// Fails only if the file cannot be opened as HDF5 at all: [`Error::Read`] for a missing or
+/// unreadable path or a folder, [`Error::Input`] (one problem at `/`) for a file that is empty
+/// or not HDF5.
+pub fn inspect_run(path: &Path) -> Result<RunInspection> {
+    let file = open(path)?;
+    let mut c = access::Collector::default();
+    let mut summary = RunSummary::default();
+    let run = layout::read_all(&mut c, &file, &mut summary);
+    drop(file);
+    let run = if c.problems.is_empty() { run } else { None };
+    if c.problems.is_empty() && run.is_none() {
+        c.problem(
+            "/",
+            "could not be read completely; please report this as a bug in quassay",
+        );
+    }
+    Ok(RunInspection {
+        file: path.to_path_buf(),
+        summary,
+        problems: c.problems,
+        notes: c.notes,
+        run,
+    })
+}
+
+/// Opens `path` read-only as HDF5, with the failures a user can cause told apart.
+fn open(path: &Path) -> Result<hdf5::File> {
+    hdf5::silence_errors(true);
+    let read_err = |source: std::io::Error| Error::Read {
+        path: path.to_path_buf(),
+        source,
+    };
+    let meta = std::fs::metadata(path).map_err(read_err)?;
+    if meta.is_dir() {
+        return Err(read_err(std::io::Error::new(
+            std::io::ErrorKind::IsADirectory,
+            "it is a folder; give the path of a run file (HDF5, layout quassay-run v1)",
+        )));
+    }
+    // Reading one byte tells a permission problem from a format problem.
+    std::fs::File::open(path).map_err(read_err)?;
+    let not_run = |message: String| Error::input(InputKind::Run, path, "/", message);
+    if meta.len() == 0 {
+        return Err(not_run(
+            "the file is empty (0 bytes), so it is not an HDF5 run file; was it copied or written completely?"
+                .to_string(),
+        ));
+    }
+    hdf5::File::open(path).map_err(|e| {
+        not_run(format!(
+            "is not an HDF5 file that can be opened (HDF5 says: {e}); give a run file written in HDF5 layout quassay-run v1 (see docs/run-format.md)"
+        ))
+    })
+}

@@ -1,0 +1,373 @@
+//! Typed access to HDF5 attributes and datasets that turns every failure into a [`Problem`].
+//!
+//! The layout allows what h5py and other writers commonly produce: strings variable- or
+//! fixed-length, ASCII or UTF-8, stored as a scalar or a one-element array; integers of any
+//! width and signedness; floats of any width and byte order. A float item may also be stored as
+//! an integer (h5py stores `attrs['spectrum_min'] = -1` as int64); integers convert to `f64`
+//! exactly up to 2^53 in magnitude. HDF5 itself undoes byte order, chunking, deflate and
+//! shuffle when it reads, so nothing here depends on how a dataset is laid out.
+
+use hdf5::types::{FixedAscii, FixedUnicode, TypeDescriptor, VarLenAscii, VarLenUnicode};
+use hdf5::{Attribute, Dataset, Group, Location};
+use ndarray::ArrayD;
+
+use crate::error::Problem;
+
+/// Longest fixed-length string read (bytes); longer ones are reported, not truncated.
+const MAX_FIXED_STRING: usize = 16384;
+
+/// How a float item was stored; the range checks allow for the rounding of narrow types.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Stored {
+    /// float64 or an integer type: no rounding allowance.
+    Exact,
+    /// A float with `bits` significant bits (float32: 24, float16: 11).
+    Narrow { bits: u32 },
+}
+
+impl Stored {
+    /// The relative rounding of one value stored this way (0 for exact storage).
+    pub fn relative_rounding(self) -> f64 {
+        match self {
+            Stored::Exact => 0.0,
+            Stored::Narrow { bits } => 2f64.powi(-(bits as i32)),
+        }
+    }
+
+    /// The name of the type for summaries.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Stored::Exact => "float64",
+            Stored::Narrow { bits: 24 } => "float32",
+            Stored::Narrow { .. } => "float16",
+        }
+    }
+}
+
+/// Collects the problems (errors) and notes (ignored items) of one file.
+#[derive(Debug, Default)]
+pub struct Collector {
+    pub problems: Vec<Problem>,
+    pub notes: Vec<Problem>,
+}
+
+impl Collector {
+    /// Records a problem at `path`.
+    pub fn problem(&mut self, path: impl Into<String>, message: impl Into<String>) {
+        self.problems.push(Problem::new(path, message));
+    }
+
+    /// Records a note (not an error) at `path`.
+    pub fn note(&mut self, path: impl Into<String>, message: impl Into<String>) {
+        self.notes.push(Problem::new(path, message));
+    }
+}
+
+/// Records a problem with attribute `name` of the object at `at` (the problem's path is the
+/// object's; the message names the attribute).
+pub fn attr_problem(c: &mut Collector, at: &str, name: &str, message: impl std::fmt::Display) {
+    c.problem(at, format!("attribute `{name}` {message}"));
+}
+
+/// `path` of member `name` of the group at `at`.
+pub fn child_path(at: &str, name: &str) -> String {
+    if at == "/" {
+        format!("/{name}")
+    } else {
+        format!("{at}/{name}")
+    }
+}
+
+fn descriptor_of(dtype: hdf5::Result<hdf5::Datatype>) -> Option<TypeDescriptor> {
+    dtype.ok().and_then(|t| t.to_descriptor().ok())
+}
+
+fn type_words(d: &Option<TypeDescriptor>) -> String {
+    match d {
+        Some(d) => format!("{d}"),
+        None => "an unsupported type".to_string(),
+    }
+}
+
+/// Opens attribute `name` of `loc`; `None` if it does not exist (no problem recorded).
+pub fn open_attr(loc: &Location, name: &str) -> Option<Attribute> {
+    if !loc.attr_names().is_ok_and(|n| n.iter().any(|x| x == name)) {
+        return None;
+    }
+    loc.attr(name).ok()
+}
+
+/// Reads a string attribute; records a problem if it is present but not one string, and (if
+/// `required`) if it is missing.
+pub fn string_attr(
+    c: &mut Collector,
+    loc: &Location,
+    at: &str,
+    name: &str,
+    required: Option<&str>,
+) -> Option<String> {
+    let Some(attr) = open_attr(loc, name) else {
+        if let Some(fix) = required {
+            attr_problem(c, at, name, format!("is missing; {fix}"));
+        }
+        return None;
+    };
+    if attr.size() != 1 {
+        attr_problem(
+            c,
+            at,
+            name,
+            format!("holds {} values; store a single string", attr.size()),
+        );
+        return None;
+    }
+    let d = descriptor_of(attr.dtype());
+    let read = match &d {
+        Some(TypeDescriptor::VarLenUnicode) => attr
+            .read_raw::<VarLenUnicode>()
+            .map(|v| v.first().map(|s| s.as_str().to_string())),
+        Some(TypeDescriptor::VarLenAscii) => attr
+            .read_raw::<VarLenAscii>()
+            .map(|v| v.first().map(|s| s.as_str().to_string())),
+        Some(TypeDescriptor::FixedAscii(n)) if *n <= MAX_FIXED_STRING => attr
+            .read_raw::<FixedAscii<MAX_FIXED_STRING>>()
+            .map(|v| v.first().map(|s| s.as_str().to_string())),
+        Some(TypeDescriptor::FixedUnicode(n)) if *n <= MAX_FIXED_STRING => attr
+            .read_raw::<FixedUnicode<MAX_FIXED_STRING>>()
+            .map(|v| v.first().map(|s| s.as_str().to_string())),
+        Some(TypeDescriptor::FixedAscii(n)) | Some(TypeDescriptor::FixedUnicode(n)) => {
+            attr_problem(c, at, name,
+                format!("is a fixed-length string of {n} bytes, more than the {MAX_FIXED_STRING} supported; store it as a variable-length string"),
+            );
+            return None;
+        }
+        _ => {
+            attr_problem(
+                c,
+                at,
+                name,
+                format!(
+                    "must be a string but is {}; store it as a string",
+                    type_words(&d)
+                ),
+            );
+            return None;
+        }
+    };
+    match read {
+        Ok(Some(s)) => Some(s),
+        Ok(None) => {
+            attr_problem(c, at, name, "holds no value; store a single string");
+            None
+        }
+        Err(e) => {
+            attr_problem(c, at, name, format!("cannot be read as a string ({e}); rewrite it as a variable-length UTF-8 string"));
+            None
+        }
+    }
+}
+
+/// Reads every integer of an attribute (scalar or vector), widened to `i128` so that signed
+/// and unsigned 64-bit values both fit.
+pub fn int_values_attr(
+    c: &mut Collector,
+    attr: &Attribute,
+    at: &str,
+    name: &str,
+) -> Option<Vec<i128>> {
+    let d = descriptor_of(attr.dtype());
+    let read = match &d {
+        Some(TypeDescriptor::Integer(_)) => attr
+            .read_raw::<i64>()
+            .map(|v| v.into_iter().map(i128::from).collect()),
+        Some(TypeDescriptor::Unsigned(_)) => attr
+            .read_raw::<u64>()
+            .map(|v| v.into_iter().map(i128::from).collect()),
+        _ => {
+            attr_problem(
+                c,
+                at,
+                name,
+                format!(
+                    "must be an integer but is {}; store it as an integer",
+                    type_words(&d)
+                ),
+            );
+            return None;
+        }
+    };
+    match read {
+        Ok(v) => Some(v),
+        Err(e) => {
+            attr_problem(
+                c,
+                at,
+                name,
+                format!("cannot be read as integers ({e}); rewrite it as int64"),
+            );
+            None
+        }
+    }
+}
+
+/// Reads a single integer attribute; missing is a problem if `required` (the fix) is given.
+pub fn int_attr(
+    c: &mut Collector,
+    loc: &Location,
+    at: &str,
+    name: &str,
+    required: Option<&str>,
+) -> Option<i128> {
+    let Some(attr) = open_attr(loc, name) else {
+        if let Some(fix) = required {
+            attr_problem(c, at, name, format!("is missing; {fix}"));
+        }
+        return None;
+    };
+    let v = int_values_attr(c, &attr, at, name)?;
+    if v.len() != 1 {
+        attr_problem(
+            c,
+            at,
+            name,
+            format!("holds {} values; store a single integer", v.len()),
+        );
+        return None;
+    }
+    Some(v[0])
+}
+
+/// Reads an integer-vector attribute (a scalar counts as a vector of one); `None` if missing.
+pub fn int_vec_attr(c: &mut Collector, loc: &Location, at: &str, name: &str) -> Option<Vec<i128>> {
+    let attr = open_attr(loc, name)?;
+    int_values_attr(c, &attr, at, name)
+}
+
+/// Reads a single float attribute (float or integer storage); missing is a problem if
+/// `required`. Finiteness is left to the caller.
+pub fn f64_attr(
+    c: &mut Collector,
+    loc: &Location,
+    at: &str,
+    name: &str,
+    required: Option<&str>,
+) -> Option<f64> {
+    let Some(attr) = open_attr(loc, name) else {
+        if let Some(fix) = required {
+            attr_problem(c, at, name, format!("is missing; {fix}"));
+        }
+        return None;
+    };
+    let d = descriptor_of(attr.dtype());
+    if !matches!(
+        d,
+        Some(TypeDescriptor::Float(_) | TypeDescriptor::Integer(_) | TypeDescriptor::Unsigned(_))
+    ) {
+        attr_problem(
+            c,
+            at,
+            name,
+            format!(
+                "must be a number but is {}; store it as float64",
+                type_words(&d)
+            ),
+        );
+        return None;
+    }
+    match attr.read_raw::<f64>() {
+        Ok(v) if v.len() == 1 => Some(v[0]),
+        Ok(v) => {
+            attr_problem(
+                c,
+                at,
+                name,
+                format!("holds {} values; store a single float64", v.len()),
+            );
+            None
+        }
+        Err(e) => {
+            attr_problem(
+                c,
+                at,
+                name,
+                format!("cannot be read as a number ({e}); store it as float64"),
+            );
+            None
+        }
+    }
+}
+
+/// Opens dataset `name` of `group`; `None` if there is no such link (no problem recorded), a
+/// problem if the link is not a dataset.
+pub fn open_dataset(c: &mut Collector, group: &Group, at: &str, name: &str) -> Option<Dataset> {
+    if !group.link_exists(name) {
+        return None;
+    }
+    match group.dataset(name) {
+        Ok(d) => Some(d),
+        Err(_) => {
+            c.problem(
+                child_path(at, name),
+                "is not a dataset (a group or a broken link?); store the data as a dataset",
+            );
+            None
+        }
+    }
+}
+
+/// Reads a float dataset (float or integer storage) of any rank, with how it was stored.
+pub fn f64_dataset(c: &mut Collector, ds: &Dataset, path: &str) -> Option<(ArrayD<f64>, Stored)> {
+    let d = descriptor_of(ds.dtype());
+    let stored = match &d {
+        // Significant bits by storage size: binary64, binary32, binary16 (IEEE 754).
+        Some(TypeDescriptor::Float(_)) => match ds.dtype().map(|t| t.size()).unwrap_or(8) {
+            8.. => Stored::Exact,
+            4..=7 => Stored::Narrow { bits: 24 },
+            _ => Stored::Narrow { bits: 11 },
+        },
+        Some(TypeDescriptor::Integer(_) | TypeDescriptor::Unsigned(_)) => Stored::Exact,
+        _ => {
+            c.problem(
+                path,
+                format!(
+                    "must hold numbers but holds {}; store float64 or float32",
+                    type_words(&d)
+                ),
+            );
+            return None;
+        }
+    };
+    match ds.read_dyn::<f64>() {
+        Ok(a) => Some((a, stored)),
+        Err(e) => {
+            c.problem(path, format!("cannot be read ({e}); rewrite it as float64"));
+            None
+        }
+    }
+}
+
+/// Reads an integer dataset of any rank, widened to `i128`.
+pub fn int_dataset(c: &mut Collector, ds: &Dataset, path: &str) -> Option<ArrayD<i128>> {
+    let d = descriptor_of(ds.dtype());
+    let read = match &d {
+        Some(TypeDescriptor::Integer(_)) => ds.read_dyn::<i64>().map(|a| a.mapv(i128::from)),
+        Some(TypeDescriptor::Unsigned(_)) => ds.read_dyn::<u64>().map(|a| a.mapv(i128::from)),
+        _ => {
+            c.problem(
+                path,
+                format!(
+                    "must hold integers but holds {}; store it as int64",
+                    type_words(&d)
+                ),
+            );
+            return None;
+        }
+    };
+    match read {
+        Ok(a) => Some(a),
+        Err(e) => {
+            c.problem(path, format!("cannot be read ({e}); rewrite it as int64"));
+            None
+        }
+    }
+}

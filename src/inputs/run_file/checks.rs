@@ -1,0 +1,311 @@
+//! The pure checks of layout v1: names, times, finiteness, ranges, supports and term structure.
+//!
+//! Each check returns the message of a problem (what is wrong and the fix) or the checked value;
+//! the caller attaches the HDF5 path. Nothing here touches a file, so all of it is unit-tested.
+//!
+//! Range tolerance (docs/run-format.md): a value `v` of an observable with spectrum
+//! `[lo, hi]` is accepted if `lo − tol ≤ v ≤ hi + tol`, where
+//! `tol = 1e-9·(hi − lo) + 1e-12 + ρ·max(|lo|, |hi|)` and `ρ` is the relative rounding of the
+//! stored float type (0 for float64, 2^-24 for float32, 2^-11 for float16): an estimate that is
+//! exactly at the edge of the spectrum may round outward once when it is stored narrowly.
+
+use ndarray::{ArrayView1, ArrayView2};
+
+/// Relative slack of the terms-consistency check, for the rounding of the sum.
+const TERMS_RELATIVE_SLACK: f64 = 1e-9;
+/// Absolute slack of the range and terms checks.
+const ABSOLUTE_SLACK: f64 = 1e-12;
+/// Relative (to the spread) slack of the range check.
+const SPREAD_SLACK: f64 = 1e-9;
+
+/// Whether `name` is a valid observable name: non-empty, of ASCII letters, digits, `_`, `-`,
+/// `.`.
+pub fn valid_name(name: &str) -> bool {
+    !name.is_empty()
+        && name
+            .bytes()
+            .all(|b| b.is_ascii_alphanumeric() || matches!(b, b'_' | b'-' | b'.'))
+}
+
+/// Checks `/times`: at least one value, all finite, ≥ 0 and non-decreasing.
+pub fn check_times(times: &[f64]) -> Vec<String> {
+    let mut out = Vec::new();
+    if times.is_empty() {
+        out.push("holds no times; store at least one time".to_string());
+        return out;
+    }
+    if let Some(k) = times.iter().position(|t| !t.is_finite()) {
+        let n = times.iter().filter(|t| !t.is_finite()).count();
+        out.push(format!(
+            "{n} time(s) are NaN or infinite (first at index {k}); every time must be a finite number"
+        ));
+    }
+    if let Some(k) = times.iter().position(|&t| t < 0.0) {
+        out.push(format!(
+            "time {} at index {k} is negative; times count from the start of the evolution and must be ≥ 0",
+            times[k]
+        ));
+    }
+    if let Some(k) = (1..times.len()).find(|&k| times[k] < times[k - 1]) {
+        out.push(format!(
+            "times decrease at index {k} ({} after {}); sort the times (and the columns of every dataset with them) into non-decreasing order",
+            times[k],
+            times[k - 1]
+        ));
+    }
+    out
+}
+
+/// Finds non-finite entries of an R × T array: `(count, first [r, k])`.
+pub fn non_finite_2d(a: ArrayView2<f64>) -> Option<(usize, [usize; 2])> {
+    let mut first = None;
+    let mut count = 0;
+    for ((r, k), v) in a.indexed_iter() {
+        if !v.is_finite() {
+            count += 1;
+            first.get_or_insert([r, k]);
+        }
+    }
+    first.map(|f| (count, f))
+}
+
+/// The message for the non-finite entries of an R × T dataset, if any.
+pub fn check_finite_2d(a: ArrayView2<f64>) -> Option<String> {
+    non_finite_2d(a).map(|(n, [r, k])| {
+        format!(
+            "{n} value(s) are NaN or infinite (first at [realization, time] = [{r}, {k}]); store a finite number at every point, or leave the realization out"
+        )
+    })
+}
+
+/// The half-width of the tolerance band around a spectrum (see the module header).
+pub fn range_tolerance(lo: f64, hi: f64, relative_rounding: f64) -> f64 {
+    SPREAD_SLACK * (hi - lo) + ABSOLUTE_SLACK + relative_rounding * lo.abs().max(hi.abs())
+}
+
+/// The message for finite values outside `[lo − tol, hi + tol]`, if any; `what` names the
+/// items ("value", "ideal value").
+pub fn check_in_range<'a>(
+    values: impl Iterator<Item = (String, &'a f64)>,
+    lo: f64,
+    hi: f64,
+    tol: f64,
+    what: &str,
+) -> Option<String> {
+    let mut count = 0usize;
+    let mut first: Option<(String, f64)> = None;
+    let mut worst = 0.0f64;
+    for (at, &v) in values {
+        if !v.is_finite() {
+            continue;
+        }
+        let excess = (lo - v).max(v - hi);
+        if excess > tol {
+            count += 1;
+            worst = worst.max(excess);
+            if first.is_none() {
+                first = Some((at, v));
+            }
+        }
+    }
+    first.map(|(at, v)| {
+        format!(
+            "{count} {what}(s) lie outside the spectrum [{lo}, {hi}] by more than the tolerance {tol:.3e} (first {v} at {at}, largest excess {worst:.3e}); correct the values or the attributes spectrum_min/spectrum_max"
+        )
+    })
+}
+
+/// Iterates an R × T array with each entry's position as text.
+pub fn indexed_2d(a: ArrayView2<'_, f64>) -> impl Iterator<Item = (String, &f64)> {
+    a.into_iter().enumerate().map(move |(i, v)| {
+        (
+            format!("[{}, {}]", i / a.ncols().max(1), i % a.ncols().max(1)),
+            v,
+        )
+    })
+}
+
+/// Iterates a vector with each entry's position as text.
+pub fn indexed_1d(a: ArrayView1<'_, f64>) -> impl Iterator<Item = (String, &f64)> {
+    a.into_iter()
+        .enumerate()
+        .map(|(i, v)| (format!("index {i}"), v))
+}
+
+/// Checks a support (sites an operator acts on): every site in `0..n_sites`, no repeats.
+/// Returns the sites sorted.
+pub fn check_support(sites: &[i128], n_sites: Option<usize>) -> Result<Vec<usize>, String> {
+    let mut out = Vec::with_capacity(sites.len());
+    for &s in sites {
+        let bad_high = n_sites.is_some_and(|n| s >= n as i128);
+        if s < 0 || bad_high || s > usize::MAX as i128 {
+            return Err(match n_sites {
+                Some(n) => format!(
+                    "site {s} is outside the lattice (sites are numbered 0 to {}); use 0-based site numbers below n_sites = {n}",
+                    n.saturating_sub(1)
+                ),
+                None => format!("site {s} is negative; use 0-based site numbers"),
+            });
+        }
+        out.push(s as usize);
+    }
+    out.sort_unstable();
+    if let Some(w) = out.windows(2).find(|w| w[0] == w[1]) {
+        return Err(format!(
+            "site {} is listed twice; list every site once",
+            w[0]
+        ));
+    }
+    Ok(out)
+}
+
+/// One row of `terms_support`: the sites first, then `-1` padding. Returns the sites sorted.
+pub fn parse_term_row(row: &[i128], n_sites: Option<usize>) -> Result<Vec<usize>, String> {
+    let len = row.iter().position(|&s| s == -1).unwrap_or(row.len());
+    if row[len..].iter().any(|&s| s != -1) {
+        return Err(
+            "has a site after the -1 padding; list the sites first, then pad with -1".to_string(),
+        );
+    }
+    if len == 0 {
+        return Err("lists no site; every term acts on at least one site (fold a constant term into the values instead)".to_string());
+    }
+    check_support(&row[..len], n_sites)
+}
+
+/// `Σ_a |w_a| · max(|min_a|, |max_a|)`: a bound on the operator norm of `Σ_a w_a O_a`
+/// (triangle inequality), summed in term order.
+pub fn terms_norm_bound(weights: &[f64], spectra: &[[f64; 2]]) -> f64 {
+    weights
+        .iter()
+        .zip(spectra)
+        .map(|(w, s)| w.abs() * s[0].abs().max(s[1].abs()))
+        .sum()
+}
+
+/// formats.md: the terms' norm bound must bound both `|spectrum_min|` and `|spectrum_max|`
+/// (a declared range wider than the terms allow cannot be right). Allows
+/// `1e-9·bound + 1e-12` for rounding.
+pub fn check_terms_consistent(
+    weights: &[f64],
+    spectra: &[[f64; 2]],
+    lo: f64,
+    hi: f64,
+) -> Option<String> {
+    let bound = terms_norm_bound(weights, spectra);
+    let widest = lo.abs().max(hi.abs());
+    if widest > bound * (1.0 + TERMS_RELATIVE_SLACK) + ABSOLUTE_SLACK {
+        Some(format!(
+            "the terms bound the norm of the observable by Σ|w_a|·max(|min_a|, |max_a|) = {bound}, but spectrum [{lo}, {hi}] reaches {widest}; correct the weights, the term spectra or spectrum_min/spectrum_max"
+        ))
+    } else {
+        None
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::array;
+
+    #[test]
+    fn names_allow_letters_digits_and_three_marks_only() {
+        for ok in ["Z_5", "ZZ-0.1", "n", "X.3", "a1"] {
+            assert!(valid_name(ok), "{ok}");
+        }
+        for bad in ["", "Z 5", "Z/5", "Zé", "a+b", "<Z>"] {
+            assert!(!valid_name(bad), "{bad}");
+        }
+    }
+
+    #[test]
+    fn times_must_be_finite_non_negative_and_non_decreasing() {
+        assert!(check_times(&[0.0, 0.0, 0.5, 1.0]).is_empty());
+        assert_eq!(check_times(&[]).len(), 1);
+        let m = check_times(&[0.0, f64::NAN, 1.0]);
+        assert!(m[0].contains("index 1"), "{m:?}");
+        let m = check_times(&[-0.5, 1.0]);
+        assert!(m[0].contains("negative"), "{m:?}");
+        let m = check_times(&[0.0, 2.0, 1.0]);
+        assert_eq!(m.len(), 1);
+        assert!(m[0].contains("decrease at index 2"), "{m:?}");
+    }
+
+    #[test]
+    fn non_finite_values_are_counted_with_the_first_position() {
+        let a = array![
+            [0.0, 1.0, f64::NAN],
+            [f64::INFINITY, 0.0, f64::NEG_INFINITY]
+        ];
+        assert_eq!(non_finite_2d(a.view()), Some((3, [0, 2])));
+        assert_eq!(non_finite_2d(array![[0.5]].view()), None);
+    }
+
+    #[test]
+    fn float32_storage_widens_the_range_tolerance_by_one_rounding() {
+        // 0.3 is not a float32; its nearest float32 is 0.300000011920928955078125 (exact value of
+        // the binary32 number 0x3E99999A, IEEE 754).
+        let v32 = 0.3f32 as f64;
+        assert!(v32 > 0.3);
+        let tight = range_tolerance(-0.3, 0.3, 0.0);
+        let narrow = range_tolerance(-0.3, 0.3, 2f64.powi(-24));
+        let excess = v32 - 0.3;
+        assert!(excess > tight && excess <= narrow);
+        let vals = [v32];
+        let it = || vals.iter().enumerate().map(|(i, v)| (format!("{i}"), v));
+        assert!(check_in_range(it(), -0.3, 0.3, tight, "value").is_some());
+        assert!(check_in_range(it(), -0.3, 0.3, narrow, "value").is_none());
+    }
+
+    #[test]
+    fn values_outside_the_spectrum_are_reported_with_count_and_worst() {
+        let a = array![[0.5, 1.5], [-1.0, 2.0]];
+        let m = check_in_range(indexed_2d(a.view()), -1.0, 1.0, 1e-12, "value").unwrap();
+        assert!(m.starts_with("2 value(s)"), "{m}");
+        assert!(m.contains("first 1.5 at [0, 1]"), "{m}");
+        assert!(m.contains("largest excess 1.000e0"), "{m}");
+        assert!(check_in_range(
+            indexed_2d(array![[1.0 + 1e-13]].view()),
+            -1.0,
+            1.0,
+            range_tolerance(-1.0, 1.0, 0.0),
+            "value"
+        )
+        .is_none());
+    }
+
+    #[test]
+    fn supports_are_sorted_and_checked_against_the_lattice() {
+        assert_eq!(check_support(&[3, 1, 2], Some(4)), Ok(vec![1, 2, 3]));
+        assert!(check_support(&[4], Some(4))
+            .unwrap_err()
+            .contains("below n_sites = 4"));
+        assert!(check_support(&[-1], Some(4)).is_err());
+        assert!(check_support(&[1, 1], Some(4))
+            .unwrap_err()
+            .contains("twice"));
+        assert_eq!(check_support(&[], Some(4)), Ok(vec![]));
+    }
+
+    #[test]
+    fn term_rows_are_sites_then_padding() {
+        assert_eq!(parse_term_row(&[2, 0, -1], Some(3)), Ok(vec![0, 2]));
+        assert!(parse_term_row(&[-1, 0], Some(3)).is_err());
+        assert!(parse_term_row(&[-1, -1], Some(3)).is_err());
+        assert!(parse_term_row(&[0, -2], Some(3)).is_err());
+    }
+
+    #[test]
+    fn magnetisation_terms_bound_the_declared_spectrum() {
+        // M = (1/4) Σ_i Z_i on 4 sites: ‖M‖ = 1 exactly (all spins up), and the bound is
+        // 4 · 1/4 · 1 = 1.
+        let w = [0.25; 4];
+        let s = [[-1.0, 1.0]; 4];
+        assert_eq!(terms_norm_bound(&w, &s), 1.0);
+        assert!(check_terms_consistent(&w, &s, -1.0, 1.0).is_none());
+        assert!(check_terms_consistent(&w, &s, -0.5, 0.5).is_none());
+        assert!(check_terms_consistent(&w, &s, -1.0, 1.5).is_some());
+        // Projector terms [0, 1] with negative weights: |w|·1 each.
+        assert!(check_terms_consistent(&[-1.0, 2.0], &[[0.0, 1.0]; 2], -1.0, 2.0).is_none());
+    }
+}
