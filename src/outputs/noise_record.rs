@@ -1,1 +1,267 @@
 //! Writer for noise records (JSON, format `quassay-noise` v1), deterministic and pretty-printed.
+//!
+//! The simulator writes the record that goes with a synthetic run, and a user may want a
+//! record rewritten in its canonical layout. The text is laid out by hand so that the keys come
+//! in the order of formats.md's example (a `serde_json::Map` would sort them), two spaces per
+//! level, one source per block, short arrays and the `distribution` object on one line, and a
+//! final newline. Numbers are printed by serde_json (shortest text that reads back to the same
+//! double), strings are escaped by serde_json, so reading the output with
+//! [`crate::inputs::noise_record::parse_noise_record`] gives back an equal record. Optional
+//! offsets are always written, even when zero, so the file says everything explicitly.
+
+use serde_json::Value;
+
+use crate::inputs::noise_record::{FORMAT, FORMAT_VERSION};
+use crate::model::noise::{ActsOn, Amplitude, Calibration, Family, NoiseRecord, NoiseSource};
+
+/// The record as pretty-printed JSON text with a trailing newline.
+///
+/// Every number of a record that passed the reader is finite; a non-finite number (possible
+/// only in a record built by hand) has no JSON form and is written as `null`, which the reader
+/// then refuses.
+pub fn to_json_string(record: &NoiseRecord) -> String {
+    let mut out = String::new();
+    out.push_str("{\n");
+    line(&mut out, 1, "format", &string(FORMAT), true);
+    line(
+        &mut out,
+        1,
+        "format_version",
+        &FORMAT_VERSION.to_string(),
+        true,
+    );
+    line(
+        &mut out,
+        1,
+        "frequency_unit",
+        &string(record.frequency_unit.as_str()),
+        true,
+    );
+    line(
+        &mut out,
+        1,
+        "redrawn",
+        &string(record.redrawn.as_str()),
+        true,
+    );
+    out.push_str("  \"sources\": [\n");
+    for (i, s) in record.sources.iter().enumerate() {
+        source(&mut out, s);
+        out.push_str(if i + 1 < record.sources.len() {
+            ",\n"
+        } else {
+            "\n"
+        });
+    }
+    match &record.calibration {
+        None => out.push_str("  ]\n"),
+        Some(c) => {
+            out.push_str("  ],\n");
+            line(&mut out, 1, "calibration", &calibration(c), false);
+        }
+    }
+    out.push_str("}\n");
+    out
+}
+
+/// Writes `"key": value` at `depth` (two spaces each), with a comma if `more` follow.
+fn line(out: &mut String, depth: usize, key: &str, value: &str, more: bool) {
+    out.push_str(&"  ".repeat(depth));
+    out.push_str(&string(key));
+    out.push_str(": ");
+    out.push_str(value);
+    out.push_str(if more { ",\n" } else { "\n" });
+}
+
+fn source(out: &mut String, s: &NoiseSource) {
+    out.push_str("    {\n");
+    line(out, 3, "name", &string(&s.name), true);
+    line(out, 3, "acts_on", &acts_on(&s.acts_on), true);
+    line(
+        out,
+        3,
+        "operator_spectrum",
+        &numbers(&s.operator_spectrum),
+        true,
+    );
+    let amplitude = match &s.amplitude {
+        Amplitude::Scalar(a) => number(*a),
+        Amplitude::PerInstance(v) => numbers(v),
+    };
+    line(out, 3, "amplitude", &amplitude, true);
+    line(out, 3, "distribution", &distribution(&s.family), true);
+    line(out, 3, "mean_offset", &number(s.mean_offset), true);
+    line(
+        out,
+        3,
+        "mean_offset_uncertainty",
+        &number(s.mean_offset_uncertainty),
+        false,
+    );
+    out.push_str("    }");
+}
+
+fn acts_on(a: &ActsOn) -> String {
+    match a {
+        ActsOn::EachSite => string("each_site"),
+        ActsOn::EachBond => string("each_bond"),
+        ActsOn::Sites(lists) => {
+            let inner: Vec<String> = lists
+                .iter()
+                .map(|l| {
+                    let sites: Vec<String> = l.iter().map(|s| s.to_string()).collect();
+                    format!("[{}]", sites.join(", "))
+                })
+                .collect();
+            format!("{{ \"sites\": [{}] }}", inner.join(", "))
+        }
+    }
+}
+
+fn distribution(f: &Family) -> String {
+    let mut parts = vec![format!("\"family\": {}", string(f.name()))];
+    let mut param = |k: &str, v: String| parts.push(format!("{}: {v}", string(k)));
+    match *f {
+        Family::Uniform | Family::TwoPoint => {}
+        Family::Normal { sigma } => param("sigma", number(sigma)),
+        Family::TruncatedNormal { sigma, cutoff } => {
+            param("sigma", number(sigma));
+            param("cutoff", number(cutoff));
+        }
+        Family::Bounded {
+            lower,
+            upper,
+            std,
+            symmetric,
+        } => {
+            param("lower", number(lower));
+            param("upper", number(upper));
+            param("std", number(std));
+            param("symmetric", symmetric.to_string());
+        }
+    }
+    format!("{{ {} }}", parts.join(", "))
+}
+
+fn calibration(c: &Calibration) -> String {
+    let parts: Vec<String> = [
+        ("method", &c.method),
+        ("date", &c.date),
+        ("notes", &c.notes),
+    ]
+    .into_iter()
+    .filter_map(|(k, v)| v.as_ref().map(|v| format!("{}: {}", string(k), string(v))))
+    .collect();
+    if parts.is_empty() {
+        "{}".to_string()
+    } else {
+        format!("{{ {} }}", parts.join(", "))
+    }
+}
+
+/// A JSON string literal (serde_json's escaping).
+fn string(s: &str) -> String {
+    Value::String(s.to_string()).to_string()
+}
+
+/// A JSON number: serde_json prints the shortest decimal that reads back to the same double.
+fn number(x: f64) -> String {
+    Value::from(x).to_string()
+}
+
+fn numbers(xs: &[f64]) -> String {
+    let parts: Vec<String> = xs.iter().map(|&x| number(x)).collect();
+    format!("[{}]", parts.join(", "))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::inputs::noise_record::parse_noise_record;
+    use crate::model::noise::Redrawn;
+    use crate::model::units::FrequencyUnit;
+
+    fn example() -> NoiseRecord {
+        NoiseRecord {
+            frequency_unit: FrequencyUnit::RadPerUs,
+            redrawn: Redrawn::EveryRealization,
+            sources: vec![NoiseSource {
+                name: "site detuning".into(),
+                acts_on: ActsOn::EachSite,
+                operator_spectrum: [-1.0, 1.0],
+                amplitude: Amplitude::Scalar(0.02),
+                family: Family::Uniform,
+                mean_offset: 0.0,
+                mean_offset_uncertainty: 0.0,
+            }],
+            calibration: Some(Calibration {
+                method: Some("free text".into()),
+                date: Some("2026-11-30".into()),
+                notes: Some("free text".into()),
+            }),
+        }
+    }
+
+    #[test]
+    fn the_formats_md_example_is_written_in_its_own_layout() {
+        // The expected text is the example of formats.md, "Noise record", except that the
+        // calibration object is written with the same spacing as the distribution object.
+        let expected = r#"{
+  "format": "quassay-noise",
+  "format_version": 1,
+  "frequency_unit": "rad/us",
+  "redrawn": "every_realization",
+  "sources": [
+    {
+      "name": "site detuning",
+      "acts_on": "each_site",
+      "operator_spectrum": [-1.0, 1.0],
+      "amplitude": 0.02,
+      "distribution": { "family": "uniform" },
+      "mean_offset": 0.0,
+      "mean_offset_uncertainty": 0.0
+    }
+  ],
+  "calibration": { "method": "free text", "date": "2026-11-30", "notes": "free text" }
+}
+"#;
+        assert_eq!(to_json_string(&example()), expected);
+    }
+
+    #[test]
+    fn every_form_reads_back_equal() {
+        let mut r = example();
+        r.calibration = None;
+        r.sources.push(NoiseSource {
+            name: "quote \" and \\ and é".into(),
+            acts_on: ActsOn::Sites(vec![vec![0], vec![2, 1]]),
+            operator_spectrum: [0.0, 1.0],
+            amplitude: Amplitude::PerInstance(vec![0.1, 1e-7]),
+            family: Family::Bounded {
+                lower: -0.3,
+                upper: 0.7,
+                std: 0.1 + 0.2,
+                symmetric: false,
+            },
+            mean_offset: -1.0 / 3.0,
+            mean_offset_uncertainty: 5e-324,
+        });
+        r.sources.push(NoiseSource {
+            name: "bond".into(),
+            acts_on: ActsOn::EachBond,
+            family: Family::TruncatedNormal {
+                sigma: 0.5,
+                cutoff: 2.0,
+            },
+            ..r.sources[0].clone()
+        });
+        let text = to_json_string(&r);
+        assert!(text.ends_with("}\n"));
+        assert!(!text.contains("calibration"));
+        assert_eq!(parse_noise_record(&text).unwrap(), r);
+        r.calibration = Some(Calibration::default());
+        let text = to_json_string(&r);
+        assert!(text.contains("\"calibration\": {}\n"));
+        assert_eq!(parse_noise_record(&text).unwrap(), r);
+    }
+}
