@@ -8,6 +8,9 @@
 //! * [`quantiles`]: standard-normal quantiles;
 //! * [`special`]: the error function and the normal tail, accurate to a few ulps.
 
+pub mod confidence;
 pub mod family;
+pub mod fidelity;
+pub mod global;
 pub mod quantiles;
 pub mod special;
