@@ -46,7 +46,11 @@ impl TimeUnit {
 
     /// The spelling used in files.
     pub fn as_str(self) -> &'static str {
-        Self::ALL.iter().find(|(u, _)| *u == self).map(|(_, s)| *s).unwrap_or("?")
+        Self::ALL
+            .iter()
+            .find(|(u, _)| *u == self)
+            .map(|(_, s)| *s)
+            .unwrap_or("?")
     }
 
     /// The unit as a power of ten of seconds: `s` is 0, `us` is −6.
@@ -81,12 +85,20 @@ impl FrequencyUnit {
 
     /// The spelling used in files.
     pub fn as_str(self) -> &'static str {
-        Self::ALL.iter().find(|(u, _)| *u == self).map(|(_, s)| *s).unwrap_or("?")
+        Self::ALL
+            .iter()
+            .find(|(u, _)| *u == self)
+            .map(|(_, s)| *s)
+            .unwrap_or("?")
     }
 
     /// The list of accepted spellings, for messages.
     pub fn accepted() -> String {
-        Self::ALL.iter().map(|(_, s)| *s).collect::<Vec<_>>().join(", ")
+        Self::ALL
+            .iter()
+            .map(|(_, s)| *s)
+            .collect::<Vec<_>>()
+            .join(", ")
     }
 
     /// `(cyclic, e)`: the unit is `10^e` per second, cyclic (times 2π) or angular.
@@ -123,8 +135,8 @@ impl FrequencyUnit {
 /// `10^e` for `|e| ≤ 18`, each the correctly rounded double (decimal literals, not products).
 fn exact_power_of_ten(e: i32) -> f64 {
     const POS: [f64; 19] = [
-        1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
-        1e16, 1e17, 1e18,
+        1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+        1e17, 1e18,
     ];
     const NEG: [f64; 19] = [
         1e0, 1e-1, 1e-2, 1e-3, 1e-4, 1e-5, 1e-6, 1e-7, 1e-8, 1e-9, 1e-10, 1e-11, 1e-12, 1e-13,
