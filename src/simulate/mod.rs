@@ -13,4 +13,5 @@
 pub mod hamiltonian;
 pub mod pauli;
 pub mod propagate;
+pub mod run;
 pub mod sample;

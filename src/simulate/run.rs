@@ -1,0 +1,622 @@
+//! The whole simulation: scenario in, run model and exact truth out.
+//!
+//! For every realization (in parallel with rayon, gathered in realization order, each with its
+//! own random stream, so the result does not depend on the thread count):
+//!
+//! 1. draw `g` for every instance of the TRUE noise (per realization, once, or per shot);
+//! 2. build `H(g) = H + Σ_i a_i (μ_i + g_i) V_i` (`a_i` the true amplitude in rad per time
+//!    unit, `V_i` the physical operator) and evolve the initial product state from one
+//!    recorded time to the next;
+//! 3. at every time, for every observable, record the exact value and the shot mean.
+//!
+//! Random numbers of one realization are consumed in a fixed order: the noise draws (instance
+//! order), then per time, per observable (name order), the shots. With noise redrawn every
+//! shot, each shot is a fresh draw and a full evolution, and contributes one outcome per time
+//! and observable: `R · S` evolutions.
+
+use std::time::Instant;
+
+use ndarray::Array2;
+use num_complex::Complex64;
+use rand_chacha::rand_core::RngCore;
+use rayon::prelude::*;
+
+use super::hamiltonian::{Operator, PauliSum};
+use super::pauli::{parity_sign, PauliString};
+use super::propagate::{evolve, Workspace, DEFAULT_TOLERANCE};
+use super::sample;
+use crate::inputs::scenario::{
+    instance_supports, NoiseOperator, ObservableSpec, Scenario, SiteState,
+};
+use crate::model::noise::Amplitude;
+use crate::model::{Family, Hamiltonian, Observable, Redrawn, Run, Shots, Terms};
+
+/// Largest number of stored per-shot draws (`R · S · instances`) in the truth file.
+pub const MAX_STORED_SHOT_DRAWS: usize = 1_000_000;
+
+/// One instance of the true noise, as simulated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TrueInstance {
+    /// Index of its source in the true record.
+    pub source: usize,
+    pub support: Vec<usize>,
+    pub operator: NoiseOperator,
+    /// The amplitude `a_i` in rad per time unit (not multiplied by the half spread).
+    pub amplitude: f64,
+    /// μ_i.
+    pub mean_offset: f64,
+    pub family: Family,
+}
+
+/// Exact values of one observable.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TruthObservable {
+    pub name: String,
+    /// Exact noisy expectation per realization and time (every_shot: mean over the shots).
+    pub exact: Array2<f64>,
+    /// Exact expectation under the target Hamiltonian alone.
+    pub ideal: Vec<f64>,
+}
+
+/// What the simulator knows exactly.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Truth {
+    pub seed: u64,
+    pub redrawn: Redrawn,
+    pub instances: Vec<TrueInstance>,
+    pub observables: Vec<TruthObservable>,
+    /// The draws `g`, one row per draw: R rows (every_realization), 1 (once), R·S (every_shot,
+    /// realization-major) or `None` if there would be more than [`MAX_STORED_SHOT_DRAWS`].
+    pub draws: Option<Array2<f64>>,
+}
+
+/// Work counters and accuracy of a simulation.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Stats {
+    pub evolutions: usize,
+    pub products: usize,
+    /// Largest rigorous truncation bound accumulated along one evolution (state norm).
+    pub max_truncation_bound: f64,
+    /// Largest norm drift seen along one evolution.
+    pub max_norm_drift: f64,
+    pub seconds: f64,
+}
+
+/// The result of [`simulate`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct Simulation {
+    pub run: Run,
+    pub truth: Truth,
+    pub stats: Stats,
+}
+
+/// An observable compiled for evaluation and sampling.
+struct Compiled {
+    terms: Vec<(PauliString, f64)>,
+    /// Per site: the measured letter (`I` if not measured).
+    basis: Vec<char>,
+    single: bool,
+}
+
+impl Compiled {
+    fn new(spec: &ObservableSpec, n: usize) -> Compiled {
+        let mut basis = vec!['I'; n];
+        let terms = spec
+            .terms
+            .iter()
+            .map(|t| {
+                for (c, &s) in t.letters.chars().zip(&t.sites) {
+                    basis[s] = c;
+                }
+                let p = PauliString::from_letters(&t.letters, &t.sites)
+                    .unwrap_or(PauliString::IDENTITY);
+                (p, t.weight)
+            })
+            .collect();
+        Compiled {
+            terms,
+            basis,
+            single: !spec.averaged,
+        }
+    }
+
+    fn exact(&self, psi: &[Complex64]) -> f64 {
+        self.terms.iter().map(|(p, w)| w * p.expectation(psi)).sum()
+    }
+
+    /// The value of the observable on a basis state of the rotated (measurement) basis.
+    fn outcome(&self, b: u64) -> f64 {
+        self.terms
+            .iter()
+            .map(|(p, w)| w * parity_sign(b, p.support_mask()))
+            .sum()
+    }
+
+    /// The state rotated so that measuring every site in Z measures this observable's basis
+    /// (H for X; S† then H for Y).
+    fn rotated(&self, psi: &[Complex64]) -> Vec<Complex64> {
+        let mut v = psi.to_vec();
+        let h = std::f64::consts::FRAC_1_SQRT_2;
+        for (site, &c) in self.basis.iter().enumerate() {
+            if c != 'X' && c != 'Y' {
+                continue;
+            }
+            let bit = 1usize << site;
+            for b in 0..v.len() {
+                if b & bit != 0 {
+                    continue;
+                }
+                let (mut a0, mut a1) = (v[b], v[b | bit]);
+                if c == 'Y' {
+                    a1 *= Complex64::new(0.0, -1.0); // S† = diag(1, −i)
+                }
+                let s0 = (a0 + a1) * h;
+                let s1 = (a0 - a1) * h;
+                a0 = s0;
+                a1 = s1;
+                v[b] = a0;
+                v[b | bit] = a1;
+            }
+        }
+        v
+    }
+
+    /// Mean of `shots` outcomes on `psi`.
+    fn shot_mean(&self, rng: &mut impl RngCore, psi: &[Complex64], exact: f64, shots: u64) -> f64 {
+        if self.single {
+            return sample::pauli_shot_mean(rng, shots, exact);
+        }
+        let rotated = self.rotated(psi);
+        let states = sample::sample_basis_states(rng, &rotated, shots);
+        states.iter().map(|&b| self.outcome(b)).sum::<f64>() / shots as f64
+    }
+}
+
+/// The exact eigenvalue range of `Σ_a w_a P_a` for products in one product basis, by
+/// enumerating the bit strings of the union of the supports.
+pub fn spectrum_of_terms(terms: &[(Vec<usize>, f64)]) -> [f64; 2] {
+    let mut sites: Vec<usize> = terms.iter().flat_map(|(s, _)| s.iter().copied()).collect();
+    sites.sort_unstable();
+    sites.dedup();
+    let masks: Vec<(u64, f64)> = terms
+        .iter()
+        .map(|(s, w)| {
+            let m = s.iter().fold(0u64, |m, site| {
+                m | (1u64 << sites.binary_search(site).unwrap_or(0))
+            });
+            (m, *w)
+        })
+        .collect();
+    let mut lo = f64::INFINITY;
+    let mut hi = f64::NEG_INFINITY;
+    for b in 0..(1u64 << sites.len()) {
+        let v: f64 = masks.iter().map(|(m, w)| w * parity_sign(b, *m)).sum();
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    [lo, hi]
+}
+
+/// Half the spread of one XXZ bond term `XX + YY + Δ ZZ` (eigenvalues Δ, Δ, 2 − Δ, −2 − Δ).
+pub fn bond_half_spread(anisotropy: f64) -> f64 {
+    let d = anisotropy;
+    let max = d.max(2.0 - d);
+    let min = d.min(-2.0 - d);
+    0.5 * (max - min)
+}
+
+/// The product state of `labels`, site `i` = bit `i`.
+pub fn product_state(labels: &[SiteState]) -> Vec<Complex64> {
+    let h = std::f64::consts::FRAC_1_SQRT_2;
+    let mut psi = vec![Complex64::new(1.0, 0.0)];
+    for (i, l) in labels.iter().enumerate() {
+        let (a0, a1) = match l {
+            SiteState::Zero => (Complex64::new(1.0, 0.0), Complex64::new(0.0, 0.0)),
+            SiteState::One => (Complex64::new(0.0, 0.0), Complex64::new(1.0, 0.0)),
+            SiteState::Plus => (Complex64::new(h, 0.0), Complex64::new(h, 0.0)),
+            SiteState::Minus => (Complex64::new(h, 0.0), Complex64::new(-h, 0.0)),
+            SiteState::PlusI => (Complex64::new(h, 0.0), Complex64::new(0.0, h)),
+            SiteState::MinusI => (Complex64::new(h, 0.0), Complex64::new(0.0, -h)),
+        };
+        let half = 1usize << i;
+        let mut next = vec![Complex64::new(0.0, 0.0); half * 2];
+        for (b, &amp) in psi.iter().enumerate() {
+            next[b] = amp * a0;
+            next[b | half] = amp * a1;
+        }
+        psi = next;
+    }
+    psi
+}
+
+/// Adds `coefficient · V` for a noise operator on `support`.
+pub fn add_noise_term(h: &mut PauliSum, op: NoiseOperator, support: &[usize], coefficient: f64) {
+    let single = |l: char| PauliString::single(l, support[0]);
+    let pair = |l: &str| PauliString::from_letters(l, &support[..2]);
+    let mut put = |p: Option<PauliString>, c: f64| {
+        if let Some(p) = p {
+            h.add(p, c);
+        }
+    };
+    match op {
+        NoiseOperator::X => put(single('X'), coefficient),
+        NoiseOperator::Y => put(single('Y'), coefficient),
+        NoiseOperator::Z => put(single('Z'), coefficient),
+        NoiseOperator::N => {
+            put(Some(PauliString::IDENTITY), 0.5 * coefficient);
+            put(single('Z'), -0.5 * coefficient);
+        }
+        NoiseOperator::XX => put(pair("XX"), coefficient),
+        NoiseOperator::YY => put(pair("YY"), coefficient),
+        NoiseOperator::ZZ => put(pair("ZZ"), coefficient),
+        NoiseOperator::XxPlusYy => {
+            put(pair("XX"), coefficient);
+            put(pair("YY"), coefficient);
+        }
+    }
+}
+
+/// The target Hamiltonian of a scenario, in rad per its time unit.
+pub fn target_hamiltonian(s: &Scenario) -> PauliSum {
+    let f = s.energy_unit.factor_to_angular(s.time_unit);
+    let j: Vec<f64> = s.coupling.iter().map(|x| x * f).collect();
+    let hx: Vec<f64> = s.hx.iter().map(|x| x * f).collect();
+    let hz: Vec<f64> = s.hz.iter().map(|x| x * f).collect();
+    PauliSum::xxz(s.lattice.bonds(), &j, s.anisotropy, &hx, &hz)
+}
+
+/// The expanded true noise of a scenario.
+pub fn true_instances(s: &Scenario) -> Vec<TrueInstance> {
+    let unit = s.true_noise.frequency_unit;
+    let mut out = Vec::new();
+    for (k, (src, &op)) in s
+        .true_noise
+        .sources
+        .iter()
+        .zip(&s.true_operators)
+        .enumerate()
+    {
+        let supports = instance_supports(&src.acts_on, &s.lattice);
+        for (j, support) in supports.into_iter().enumerate() {
+            let a = match &src.amplitude {
+                Amplitude::Scalar(a) => *a,
+                Amplitude::PerInstance(v) => v.get(j).copied().unwrap_or(0.0),
+            };
+            out.push(TrueInstance {
+                source: k,
+                support,
+                operator: op,
+                amplitude: unit.to_angular(a, s.time_unit),
+                mean_offset: src.mean_offset,
+                family: src.family,
+            });
+        }
+    }
+    out
+}
+
+/// One evolution through all recorded times; calls `at(k, ψ)` at every time.
+fn trajectory(
+    h: &Operator,
+    psi0: &[Complex64],
+    times: &[f64],
+    stats: &mut Stats,
+    mut at: impl FnMut(usize, &[Complex64]),
+) {
+    let mut psi = psi0.to_vec();
+    let mut work = Workspace::default();
+    let mut now = 0.0;
+    let mut bound = 0.0;
+    let mut drift = 0.0f64;
+    for (k, &t) in times.iter().enumerate() {
+        let rep = evolve(h, &mut psi, t - now, DEFAULT_TOLERANCE, &mut work);
+        now = t;
+        stats.products += rep.products;
+        bound += rep.truncation_bound;
+        drift = drift.max((super::propagate::norm(&psi) - 1.0).abs());
+        at(k, &psi);
+    }
+    stats.evolutions += 1;
+    stats.max_truncation_bound = stats.max_truncation_bound.max(bound);
+    stats.max_norm_drift = stats.max_norm_drift.max(drift);
+}
+
+struct RealizationResult {
+    values: Vec<Array2<f64>>, // per observable: 1 × T shot means
+    exact: Vec<Vec<f64>>,     // per observable: T
+    draws: Vec<Vec<f64>>,     // rows of g
+    stats: Stats,
+}
+
+fn noisy_operator(base: &PauliSum, inst: &[TrueInstance], g: &[f64], n: usize) -> Operator {
+    let mut h = base.clone();
+    for (i, gi) in inst.iter().zip(g) {
+        add_noise_term(
+            &mut h,
+            i.operator,
+            &i.support,
+            i.amplitude * (i.mean_offset + gi),
+        );
+    }
+    Operator::compile(&h, n)
+}
+
+/// Runs the simulation of `s` with `seed`.
+pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
+    let start = Instant::now();
+    let n = s.lattice.n_sites();
+    let t_count = s.times.len();
+    let base = target_hamiltonian(s);
+    let instances = true_instances(s);
+    let compiled: Vec<Compiled> = s.observables.iter().map(|o| Compiled::new(o, n)).collect();
+    let psi0 = product_state(&s.initial_state);
+    let mut stats = Stats::default();
+
+    // Ideal trace.
+    let ideal_op = Operator::compile(&base, n);
+    let mut ideal = vec![vec![0.0; t_count]; compiled.len()];
+    trajectory(&ideal_op, &psi0, &s.times, &mut stats, |k, psi| {
+        for (o, c) in compiled.iter().enumerate() {
+            ideal[o][k] = c.exact(psi);
+        }
+    });
+
+    let redrawn = s.true_noise.redrawn;
+    let once: Vec<f64> = {
+        let mut rng = sample::stream(seed, sample::ONCE_STREAM);
+        instances
+            .iter()
+            .map(|i| sample::draw(&mut rng, &i.family))
+            .collect()
+    };
+    let shots = s.shots;
+    let results: Vec<RealizationResult> = (0..s.realizations)
+        .into_par_iter()
+        .map(|r| {
+            let mut rng = sample::realization_stream(seed, r);
+            let mut st = Stats::default();
+            let k_obs = compiled.len();
+            let mut values = vec![Array2::<f64>::zeros((1, t_count)); k_obs];
+            let mut exact = vec![vec![0.0; t_count]; k_obs];
+            let mut draws = Vec::new();
+            if redrawn == Redrawn::EveryShot {
+                let mut sums = vec![vec![0.0; t_count]; k_obs];
+                for _ in 0..shots {
+                    let g: Vec<f64> = instances
+                        .iter()
+                        .map(|i| sample::draw(&mut rng, &i.family))
+                        .collect();
+                    let h = noisy_operator(&base, &instances, &g, n);
+                    trajectory(&h, &psi0, &s.times, &mut st, |k, psi| {
+                        for (o, c) in compiled.iter().enumerate() {
+                            let e = c.exact(psi);
+                            exact[o][k] += e;
+                            sums[o][k] += c.shot_mean(&mut rng, psi, e, 1);
+                        }
+                    });
+                    draws.push(g);
+                }
+                for o in 0..k_obs {
+                    for k in 0..t_count {
+                        exact[o][k] /= shots as f64;
+                        values[o][[0, k]] = sums[o][k] / shots as f64;
+                    }
+                }
+            } else {
+                let g: Vec<f64> = if redrawn == Redrawn::Once {
+                    once.clone()
+                } else {
+                    instances
+                        .iter()
+                        .map(|i| sample::draw(&mut rng, &i.family))
+                        .collect()
+                };
+                let h = noisy_operator(&base, &instances, &g, n);
+                trajectory(&h, &psi0, &s.times, &mut st, |k, psi| {
+                    for (o, c) in compiled.iter().enumerate() {
+                        let e = c.exact(psi);
+                        exact[o][k] = e;
+                        values[o][[0, k]] = c.shot_mean(&mut rng, psi, e, shots);
+                    }
+                });
+                if redrawn == Redrawn::EveryRealization || r == 0 {
+                    draws.push(g);
+                }
+            }
+            RealizationResult {
+                values,
+                exact,
+                draws,
+                stats: st,
+            }
+        })
+        .collect();
+
+    let r_count = s.realizations;
+    let mut draw_rows: Vec<&Vec<f64>> = Vec::new();
+    for res in &results {
+        stats.evolutions += res.stats.evolutions;
+        stats.products += res.stats.products;
+        stats.max_truncation_bound = stats
+            .max_truncation_bound
+            .max(res.stats.max_truncation_bound);
+        stats.max_norm_drift = stats.max_norm_drift.max(res.stats.max_norm_drift);
+        draw_rows.extend(res.draws.iter());
+    }
+    let draws = if draw_rows.len() * instances.len() <= MAX_STORED_SHOT_DRAWS {
+        let mut a = Array2::zeros((draw_rows.len(), instances.len()));
+        for (i, row) in draw_rows.iter().enumerate() {
+            for (j, &g) in row.iter().enumerate() {
+                a[[i, j]] = g;
+            }
+        }
+        Some(a)
+    } else {
+        None
+    };
+
+    let mut observables = Vec::new();
+    let mut truth_obs = Vec::new();
+    for (o, spec) in s.observables.iter().enumerate() {
+        let mut values = Array2::zeros((r_count, t_count));
+        let mut exact = Array2::zeros((r_count, t_count));
+        for (r, res) in results.iter().enumerate() {
+            for k in 0..t_count {
+                values[[r, k]] = res.values[o][[0, k]];
+                exact[[r, k]] = res.exact[o][k];
+            }
+        }
+        let mut support: Vec<usize> = spec.terms.iter().flat_map(|t| t.sites.clone()).collect();
+        support.sort_unstable();
+        support.dedup();
+        let term_list: Vec<(Vec<usize>, f64)> = spec
+            .terms
+            .iter()
+            .map(|t| (t.sites.clone(), t.weight))
+            .collect();
+        let [lo, hi] = if spec.averaged {
+            spectrum_of_terms(&term_list)
+        } else {
+            [-1.0, 1.0]
+        };
+        let description = describe(spec, n);
+        observables.push(Observable {
+            name: spec.name.clone(),
+            values,
+            shots: Shots::Uniform(s.shots),
+            stderr: None,
+            ideal: Some(ideal[o].clone()),
+            support,
+            spectrum_min: lo,
+            spectrum_max: hi,
+            description: Some(description),
+            terms: spec.averaged.then(|| Terms {
+                supports: spec.terms.iter().map(|t| t.sites.clone()).collect(),
+                weights: spec.terms.iter().map(|t| t.weight).collect(),
+                spectra: vec![[-1.0, 1.0]; spec.terms.len()],
+            }),
+        });
+        truth_obs.push(TruthObservable {
+            name: spec.name.clone(),
+            exact,
+            ideal: ideal[o].clone(),
+        });
+    }
+
+    let half = bond_half_spread(s.anisotropy);
+    let norms: Vec<f64> = s.coupling.iter().map(|j| j.abs() * half).collect();
+    let bond_norm_max = norms.iter().copied().fold(0.0, f64::max);
+    let description = match &s.description {
+        Some(d) => format!(
+            "Simulated data from an invented scenario (quassay simulate, exact state vector, seed {seed}): {d}"
+        ),
+        None => format!(
+            "Simulated data from an invented scenario (quassay simulate, exact state vector, seed {seed})"
+        ),
+    };
+    let run = Run {
+        run_id: s.run_id.clone(),
+        time_unit: s.time_unit,
+        description: Some(description),
+        times: s.times.clone(),
+        lattice: s.lattice.clone(),
+        hamiltonian: Hamiltonian {
+            energy_unit: s.energy_unit,
+            bond_norm_max,
+            bond_norms: (!s.coupling_uniform).then_some(norms),
+            interaction_range: 1,
+        },
+        observables,
+    };
+    stats.seconds = start.elapsed().as_secs_f64();
+    Simulation {
+        run,
+        truth: Truth {
+            seed,
+            redrawn,
+            instances,
+            observables: truth_obs,
+            draws,
+        },
+        stats,
+    }
+}
+
+/// The Pauli string of a product over all sites (site 0 first), or a description of a sum.
+fn describe(spec: &ObservableSpec, n: usize) -> String {
+    let full = |letters: &str, sites: &[usize]| {
+        let mut v = vec!['I'; n];
+        for (c, &s) in letters.chars().zip(sites) {
+            v[s] = c;
+        }
+        v.into_iter().collect::<String>()
+    };
+    if !spec.averaged {
+        let t = &spec.terms[0];
+        return full(&t.letters, &t.sites);
+    }
+    let parts: Vec<String> = spec
+        .terms
+        .iter()
+        .map(|t| format!("{:+}*{}", t.weight, full(&t.letters, &t.sites)))
+        .collect();
+    parts.join(" ")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn bond_half_spread_is_two_for_unit_anisotropy_one_half() {
+        // Eigenvalues of XX + YY + 0.5 ZZ: 0.5, 0.5, 1.5, −2.5 → spread 4, half 2.
+        assert_eq!(bond_half_spread(0.5), 2.0);
+        assert_eq!(bond_half_spread(0.0), 2.0);
+        // Δ = 1 (Heisenberg): 1, 1, 1, −3 → half spread 2; Δ = −2: −2, −2, 4, 0 → 3.
+        assert_eq!(bond_half_spread(1.0), 2.0);
+        assert_eq!(bond_half_spread(-2.0), 3.0);
+    }
+
+    #[test]
+    fn staggered_magnetisation_of_four_sites_spans_minus_one_to_one() {
+        let terms: Vec<(Vec<usize>, f64)> = (0..4)
+            .map(|i| (vec![i], if i % 2 == 0 { 0.25 } else { -0.25 }))
+            .collect();
+        assert_eq!(spectrum_of_terms(&terms), [-1.0, 1.0]);
+        // Z0Z1 + Z0 takes the values 2, 0, −2, 0 on (z0, z1) = (1, 1), (1, −1), (−1, 1), (−1, −1).
+        assert_eq!(
+            spectrum_of_terms(&[(vec![0, 1], 1.0), (vec![0], 1.0)]),
+            [-2.0, 2.0]
+        );
+        // Terms that cancel: Z0Z1 − Z0Z1 + 0.5 Z2 has the values ±0.5 only (not ±2.5).
+        assert_eq!(
+            spectrum_of_terms(&[(vec![0, 1], 1.0), (vec![0, 1], -1.0), (vec![2], 0.5)]),
+            [-0.5, 0.5]
+        );
+    }
+
+    #[test]
+    fn rotation_maps_the_measured_basis_to_z() {
+        // |+i⟩ measured in Y gives +1 always; |+⟩ measured in X gives +1 always.
+        let spec = |p: &str| ObservableSpec {
+            name: "o".into(),
+            terms: vec![crate::inputs::scenario::ObservableTerm {
+                letters: p.into(),
+                sites: vec![0],
+                weight: 1.0,
+            }],
+            averaged: true,
+        };
+        for (p, st) in [
+            ("Y", SiteState::PlusI),
+            ("X", SiteState::Plus),
+            ("Z", SiteState::Zero),
+        ] {
+            let c = Compiled::new(&spec(p), 1);
+            let psi = product_state(&[st]);
+            let mut rng = sample::stream(3, 3);
+            assert_eq!(c.shot_mean(&mut rng, &psi, 1.0, 50), 1.0, "{p}");
+            assert!((c.exact(&psi) - 1.0).abs() < 1e-15);
+        }
+    }
+}
