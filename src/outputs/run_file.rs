@@ -384,6 +384,36 @@ mod tests {
     }
 
     #[test]
+    fn a_graph_without_bonds_and_a_single_time_round_trips_compressed() {
+        let dir = tempfile::tempdir().unwrap();
+        let mut run = sample_run();
+        run.lattice = Lattice::graph(6, &[], Boundary::Open).unwrap();
+        run.hamiltonian.bond_norms = Some(vec![]);
+        run.times = vec![0.25];
+        for o in &mut run.observables {
+            o.values = o.values.slice(ndarray::s![.., 0..1]).to_owned();
+            o.stderr = o
+                .stderr
+                .as_ref()
+                .map(|e| e.slice(ndarray::s![.., 0..1]).to_owned());
+            o.ideal = o.ideal.as_ref().map(|i| i[..1].to_vec());
+            if let Shots::PerPoint(a) = &o.shots {
+                o.shots = Shots::PerPoint(a.slice(ndarray::s![.., 0..1]).to_owned());
+            }
+        }
+        let path = dir.path().join("graph.h5");
+        let options = WriteOptions {
+            values: FloatWidth::F64,
+            compression: Compression::Gzip {
+                level: 9,
+                shuffle: false,
+            },
+        };
+        write_run(&path, &run, &options).unwrap();
+        assert_eq!(read_run(&path).unwrap(), run);
+    }
+
+    #[test]
     fn chunks_stay_near_64_kib_and_inside_the_shape() {
         assert_eq!(chunk_shape(&[10, 20], 8), vec![10, 20]);
         assert_eq!(chunk_shape(&[100_000], 8), vec![8192]);
