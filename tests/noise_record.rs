@@ -494,3 +494,23 @@ fn input_errors_name_the_file_and_every_problem() {
         "{text}"
     );
 }
+
+#[test]
+fn the_example_in_the_user_documentation_is_a_valid_record() {
+    let doc = std::fs::read_to_string(repo().join("docs/noise-record.md")).unwrap();
+    let start = doc.find("```json\n").unwrap() + "```json\n".len();
+    let end = start + doc[start..].find("```").unwrap();
+    let text = &doc[start..end];
+    let value: serde_json::Value = serde_json::from_str(text).unwrap();
+    assert!(validator().is_valid(&value));
+    let record = parse_noise_record(text).unwrap();
+    assert_eq!(record.sources.len(), 3);
+    // The page's worked number: 0.004 MHz on a Pauli in a run measured in us.
+    let m = record
+        .expand(
+            &Lattice::regular(Geometry::Square, &[2, 2], Boundary::Open).unwrap(),
+            TimeUnit::Us,
+        )
+        .unwrap();
+    assert!((m.instances[0].delta - 0.0251).abs() < 5e-5);
+}
