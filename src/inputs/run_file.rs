@@ -196,7 +196,13 @@ fn open(path: &Path) -> Result<hdf5::File> {
                 .to_string(),
         ));
     }
-    hdf5::File::open(path).map_err(|e| {
+    // Read-only and without HDF5's file lock: quassay never writes the file, and a lock held
+    // elsewhere (a writer, or a descriptor inherited by another process) or a file system
+    // without locks must not stop it from reading.
+    hdf5::File::with_options()
+        .with_fapl(|p| p.file_locking(false))
+        .open(path)
+        .map_err(|e| {
         not_run(format!(
             "is not an HDF5 file that can be opened (HDF5 says: {e}); give a run file written in HDF5 layout quassay-run v1 (see docs/run-format.md)"
         ))
