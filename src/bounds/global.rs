@@ -106,10 +106,19 @@ pub fn systematic(sources: &[SourceData], sens: &[f64]) -> f64 {
 /// here (callers cap at `s_O`).
 pub fn bias_global(sources: &[SourceData], s_o: f64, t: f64) -> f64 {
     let mut ln_sum = 0.0;
+    // Runs of instances with the same family and δ (the usual case: one source expanded per
+    // site) reuse the last value of ln φ; the value and the order of summation are unchanged,
+    // only the quadrature of a truncated normal is not repeated.
+    let mut last: Option<(Family, f64, f64)> = None;
     for s in sources {
         let y = 2.0 * t * s.delta;
         if y > 0.0 {
-            ln_sum += family::ln_phi(&s.family, y);
+            let v = match last {
+                Some((f, ly, v)) if f == s.family && ly == y => v,
+                _ => family::ln_phi(&s.family, y),
+            };
+            last = Some((s.family, y, v));
+            ln_sum += v;
         }
     }
     0.5 * s_o * ln_sum.exp_m1()
