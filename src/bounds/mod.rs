@@ -13,4 +13,5 @@ pub mod family;
 pub mod fidelity;
 pub mod global;
 pub mod quantiles;
+pub mod run_bounds;
 pub mod special;

@@ -17,6 +17,10 @@ pub struct Cli {
 pub enum Command {
     /// Show what a run file holds and every problem with its layout.
     Inspect(InspectArgs),
+    /// Compute error bounds and the fidelity bound for a run and write a certificate.
+    Certify(CertifyArgs),
+    /// Recompute a certificate from its archived inputs and check it reproduces byte for byte.
+    Verify(VerifyArgs),
     /// Write a synthetic run and its noise record from an exact simulation.
     Simulate(SimulateArgs),
 }
@@ -45,4 +49,57 @@ pub struct SimulateArgs {
     /// Override the scenario's seed.
     #[arg(long)]
     pub seed: Option<u64>,
+}
+
+/// `quassay certify RUN.h5 --noise NOISE.json`.
+#[derive(Debug, Args)]
+pub struct CertifyArgs {
+    /// The run file (HDF5, layout quassay-run v1).
+    pub run: PathBuf,
+    /// The noise record (JSON, format quassay-noise v1).
+    #[arg(long, value_name = "NOISE.json")]
+    pub noise: PathBuf,
+    /// Where to write the certificate [default: RUN.cert.json beside the run].
+    #[arg(short = 'o', long = "output", value_name = "CERT.json")]
+    pub output: Option<PathBuf>,
+    /// Confidence level 1 - epsilon of the claim, strictly between 0 and 1.
+    #[arg(long, default_value_t = 0.95, value_parser = open_unit_interval)]
+    pub confidence: f64,
+    /// Make the claim at each (time, observable) point separately instead of simultaneously.
+    #[arg(long)]
+    pub pointwise: bool,
+    /// Level of the consistency checks of the data against the noise record.
+    #[arg(long, default_value_t = 0.01, value_parser = open_unit_interval)]
+    pub check_level: f64,
+    /// Print the summary as JSON on standard output instead of a table.
+    #[arg(long)]
+    pub json: bool,
+    /// Replace an existing certificate.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// `quassay verify CERT.json`.
+#[derive(Debug, Args)]
+pub struct VerifyArgs {
+    /// The certificate (JSON, format quassay-certificate v1).
+    pub certificate: PathBuf,
+    /// Folder holding the inputs under their recorded paths [default: the certificate's folder].
+    #[arg(long, value_name = "DIR")]
+    pub inputs: Option<PathBuf>,
+    /// Print the report as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Parses a probability strictly between 0 and 1 (a usage error otherwise).
+fn open_unit_interval(text: &str) -> Result<f64, String> {
+    let x: f64 = text
+        .parse()
+        .map_err(|_| format!("'{text}' is not a number; give e.g. 0.95"))?;
+    if x > 0.0 && x < 1.0 {
+        Ok(x)
+    } else {
+        Err(format!("{x} is not strictly between 0 and 1"))
+    }
 }

@@ -5,8 +5,10 @@
 //! not an error.
 
 pub mod args;
+pub mod certify;
 pub mod inspect;
 pub mod simulate;
+pub mod verify;
 
 use std::io::Write;
 use std::process::ExitCode;
@@ -43,6 +45,8 @@ pub fn main() -> ExitCode {
     };
     let result = match &cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Certify(a) => certify::run(a),
+        Command::Verify(a) => verify::run(a),
         Command::Simulate(a) => simulate::run(a),
     };
     match result {

@@ -1,0 +1,316 @@
+//! The certificate's body: everything that follows from the inputs and the options, and
+//! nothing else (formats.md, "Certificate"). Its RFC 8785 form is what the digest covers.
+//!
+//! Numbers that are infinite (a worst case with an unbounded family, say) have no JSON form;
+//! they are written as the string `"unbounded"`. Per-time quantities are stored as columns
+//! (one array per quantity, aligned with `times`), which keeps the body compact and readable.
+
+use serde_json::{json, Map, Value};
+
+use super::certify::Loaded;
+use super::claim;
+use super::record::{DatasetDigest, FileRecord};
+use crate::bounds::confidence::Simultaneity;
+use crate::bounds::family;
+use crate::bounds::run_bounds::RunBounds;
+use crate::model::noise::{ActsOn, Amplitude, Family};
+use crate::model::{NoiseModel, NoiseRecord, Run};
+
+/// The format name of certificates.
+pub const FORMAT: &str = "quassay-certificate";
+/// The format version of certificates.
+pub const FORMAT_VERSION: u64 = 1;
+
+/// The options a certificate is computed with; recorded in the body, reused by `verify`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CertifyOptions {
+    /// The confidence level `1 − ε`.
+    pub confidence: f64,
+    /// Simultaneous over all points (default) or pointwise.
+    pub simultaneity: Simultaneity,
+    /// Level of the consistency checks.
+    pub check_level: f64,
+}
+
+impl Default for CertifyOptions {
+    fn default() -> Self {
+        CertifyOptions {
+            confidence: 0.95,
+            simultaneity: Simultaneity::Simultaneous,
+            check_level: 0.01,
+        }
+    }
+}
+
+/// A finite number as a JSON number; an infinite one as `"unbounded"`; NaN as `"undefined"`.
+pub fn num(x: f64) -> Value {
+    match serde_json::Number::from_f64(x) {
+        Some(n) => Value::Number(n),
+        None if x.is_nan() => Value::String("undefined".into()),
+        None => Value::String("unbounded".into()),
+    }
+}
+
+fn column(values: impl Iterator<Item = f64>) -> Value {
+    Value::Array(values.map(num).collect())
+}
+
+/// The inputs as recorded.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RecordedInputs {
+    pub run: FileRecord,
+    pub datasets: Vec<DatasetDigest>,
+    pub noise_record: FileRecord,
+}
+
+/// Builds the body.
+pub fn build_body(
+    loaded: &Loaded,
+    bounds: &RunBounds,
+    inputs: &RecordedInputs,
+    options: &CertifyOptions,
+    checks: Value,
+    verdict: Value,
+) -> Value {
+    let Loaded { run, record, model } = loaded;
+    let mut run_file = inputs.run.to_json();
+    run_file["datasets"] = Value::Array(inputs.datasets.iter().map(|d| d.to_json()).collect());
+    let claims: Vec<Value> = run
+        .observables
+        .iter()
+        .map(|o| {
+            json!({
+                "observable": o.name,
+                "text": claim::claim_sentence(&o.name, options.confidence, options.simultaneity),
+            })
+        })
+        .collect();
+    let split = &bounds.split;
+    json!({
+        "format": FORMAT,
+        "format_version": FORMAT_VERSION,
+        "tool": { "name": "quassay", "version": env!("CARGO_PKG_VERSION") },
+        "options": {
+            "confidence": num(options.confidence),
+            "statement": options.simultaneity.as_str(),
+            "check_level": num(options.check_level),
+        },
+        "claim": {
+            "confidence": num(options.confidence),
+            "statement": options.simultaneity.as_str(),
+            "interval": "[mean - e_avg - e_shot, mean + e_avg + e_shot] at each recorded time",
+            "per_observable": claims,
+            "probability_split": {
+                "epsilon": num(split.epsilon),
+                "rule": split.rule,
+                "noise_fluctuation_total": num(split.p),
+                "shot_noise_total": num(split.alpha),
+                "points": split.points,
+                "noise_fluctuation_per_point": num(split.p_point),
+                "shot_noise_per_point": num(split.alpha_point),
+                "single_evolution_per_point": num(split.p_single_point),
+                "correction": match options.simultaneity {
+                    Simultaneity::Simultaneous => "bonferroni over recorded times x observables",
+                    Simultaneity::Pointwise => "none (pointwise)",
+                },
+            },
+        },
+        "assumptions": claim::assumptions(),
+        "not_covered": claim::not_covered(),
+        "inputs": { "run": run_file, "noise_record": inputs.noise_record.to_json() },
+        "run": run_json(run),
+        "noise": noise_json(run, record, model),
+        "observables": observables_json(run, bounds),
+        "fidelity": fidelity_json(run, bounds),
+        "checks": checks,
+        "verdict": verdict,
+    })
+}
+
+fn run_json(run: &Run) -> Value {
+    let h = &run.hamiltonian;
+    let factor = h.energy_unit.factor_to_angular(run.time_unit);
+    let mut lattice = json!({
+        "geometry": run.lattice.geometry().as_str(),
+        "boundary": run.lattice.boundary().as_str(),
+        "n_bonds": run.lattice.n_bonds(),
+    });
+    if !run.lattice.shape().is_empty() {
+        lattice["shape"] = json!(run.lattice.shape());
+    }
+    let mut hamiltonian = json!({
+        "energy_unit": h.energy_unit.as_str(),
+        "bond_norm_max": num(h.bond_norm_max),
+        "bond_norm_max_angular": num(h.bond_norm_max * factor),
+        "interaction_range": h.interaction_range,
+        "per_bond_norms_given": h.bond_norms.is_some(),
+    });
+    hamiltonian["angular_unit"] = json!(format!("rad/{}", run.time_unit.as_str()));
+    let mut v = json!({
+        "run_id": run.run_id,
+        "time_unit": run.time_unit.as_str(),
+        "n_sites": run.n_sites(),
+        "n_times": run.n_times(),
+        "n_realizations": run.n_realizations(),
+        "n_observables": run.observables.len(),
+        "lattice": lattice,
+        "hamiltonian": hamiltonian,
+        "times": column(run.times.iter().copied()),
+    });
+    if let Some(d) = &run.description {
+        v["description"] = json!(d);
+    }
+    v
+}
+
+fn family_json(f: &Family) -> Value {
+    match *f {
+        Family::Uniform => json!({ "family": "uniform" }),
+        Family::Normal { sigma } => json!({ "family": "normal", "sigma": num(sigma) }),
+        Family::TruncatedNormal { sigma, cutoff } => {
+            json!({ "family": "truncated_normal", "sigma": num(sigma), "cutoff": num(cutoff) })
+        }
+        Family::TwoPoint => json!({ "family": "two_point" }),
+        Family::Bounded {
+            lower,
+            upper,
+            std,
+            symmetric,
+        } => json!({
+            "family": "bounded", "lower": num(lower), "upper": num(upper),
+            "std": num(std), "symmetric": symmetric,
+        }),
+    }
+}
+
+fn noise_json(run: &Run, record: &NoiseRecord, model: &NoiseModel) -> Value {
+    let factor = record.frequency_unit.factor_to_angular(run.time_unit);
+    let sources: Vec<Value> = record
+        .sources
+        .iter()
+        .enumerate()
+        .map(|(index, s)| {
+            let c = family::constants(&s.family);
+            let deltas: Vec<f64> = model
+                .instances
+                .iter()
+                .filter(|i| i.source == index)
+                .map(|i| i.delta)
+                .collect();
+            let acts_on = match &s.acts_on {
+                ActsOn::EachSite => json!("each_site"),
+                ActsOn::EachBond => json!("each_bond"),
+                ActsOn::Sites(list) => json!({ "sites": list }),
+            };
+            let mut v = json!({
+                "name": s.name,
+                "acts_on": acts_on,
+                "instances": deltas.len(),
+                "operator_spectrum": [num(s.operator_spectrum[0]), num(s.operator_spectrum[1])],
+                "distribution": family_json(&s.family),
+                "constants": {
+                    "b": num(c.b),
+                    "sigma": num(c.sigma),
+                    "width": num(c.width),
+                    "kappa": c.kappa.map_or(Value::Null, num),
+                    "symmetric": c.symmetric,
+                },
+                "mean_offset": num(s.mean_offset),
+                "mean_offset_uncertainty": num(s.mean_offset_uncertainty),
+            });
+            match &s.amplitude {
+                Amplitude::Scalar(a) => {
+                    v["amplitude"] = num(*a);
+                    v["delta"] = num(deltas.first().copied().unwrap_or(0.0));
+                }
+                Amplitude::PerInstance(a) => {
+                    v["amplitude"] = column(a.iter().copied());
+                    v["delta"] = column(deltas.iter().copied());
+                }
+            }
+            v
+        })
+        .collect();
+    let mut v = json!({
+        "frequency_unit": record.frequency_unit.as_str(),
+        "to_angular_factor": num(factor),
+        "angular_unit": format!("rad/{}", run.time_unit.as_str()),
+        "redrawn": record.redrawn.as_str(),
+        "n_instances": model.instances.len(),
+        "sources": sources,
+    });
+    if let Some(c) = &record.calibration {
+        let mut m = Map::new();
+        for (k, x) in [
+            ("method", &c.method),
+            ("date", &c.date),
+            ("notes", &c.notes),
+        ] {
+            if let Some(x) = x {
+                m.insert(k.into(), json!(x));
+            }
+        }
+        v["calibration"] = Value::Object(m);
+    }
+    v
+}
+
+fn observables_json(run: &Run, bounds: &RunBounds) -> Value {
+    let list: Vec<Value> = run
+        .observables
+        .iter()
+        .zip(&bounds.observables)
+        .map(|(o, b)| {
+            let p = &b.points;
+            let n = p.len();
+            let route = |r: Option<crate::bounds::global::FluctuationRoute>| match r {
+                Some(r) => json!(r.as_str()),
+                None => Value::Null,
+            };
+            let mut v = json!({
+                "name": o.name,
+                "support": if o.support.is_empty() { json!("global") } else { json!(o.support) },
+                "spectrum": [num(o.spectrum_min), num(o.spectrum_max)],
+                "spread": num(b.spread),
+                "shot_term": if b.shot_approximate {
+                    "normal approximation from standard errors (approximate)"
+                } else {
+                    "hoeffding from shot counts"
+                },
+                "statement_used": vec!["global"; n],
+                "light_cone": "not computed in this version: the global statement is used at every time",
+                "mean": column(b.mean.iter().copied()),
+                "e_wc": column(p.iter().map(|x| x.e_wc)),
+                "e_sys": column(p.iter().map(|x| x.e_sys)),
+                "e_bias": column(p.iter().map(|x| x.e_bias)),
+                "fluctuation": column(p.iter().map(|x| x.fluctuation)),
+                "fluctuation_route": p.iter().map(|x| route(x.route)).collect::<Vec<_>>(),
+                "e_avg": column(p.iter().map(|x| x.e_avg)),
+                "fluctuation_single": column(p.iter().map(|x| x.fluctuation_one)),
+                "fluctuation_single_route": p.iter().map(|x| route(x.route_one)).collect::<Vec<_>>(),
+                "e_one": column(p.iter().map(|x| x.e_one)),
+                "e_shot": column(p.iter().map(|x| x.e_shot)),
+                "lower": column((0..n).map(|k| b.interval(k)[0])),
+                "upper": column((0..n).map(|k| b.interval(k)[1])),
+            });
+            if let Some(d) = &o.description {
+                v["description"] = json!(d);
+            }
+            v
+        })
+        .collect();
+    Value::Array(list)
+}
+
+fn fidelity_json(run: &Run, bounds: &RunBounds) -> Value {
+    let f = &bounds.fidelity;
+    json!({
+        "statement": "for one noisy evolution from a pure initial state, F(t) = |<psi(t)|psi_g(t)>|^2 >= f_low at every recorded time, with the stated probability",
+        "failure_probability_per_time": num(bounds.fidelity_p),
+        "times": column(run.times.iter().copied()),
+        "d_p": column(f.iter().map(|x| x.d_p)),
+        "d_wc": column(f.iter().map(|x| x.d_wc)),
+        "f_low": column(f.iter().map(|x| x.f_low)),
+        "vacuous": f.iter().map(|x| x.vacuous).collect::<Vec<_>>(),
+    })
+}

@@ -1,0 +1,70 @@
+//! The certificate's words: the claim per observable, the assumptions and what is not covered.
+//!
+//! These sentences are part of the body (so they are covered by the digest) and must never say
+//! more than the mathematics gives (bounds.md §1 and §3, "The claim").
+
+use crate::bounds::confidence::Simultaneity;
+
+/// The claim for one observable, one plain sentence.
+pub fn claim_sentence(observable: &str, confidence: f64, simultaneity: Simultaneity) -> String {
+    match simultaneity {
+        Simultaneity::Simultaneous => format!(
+            "If the noise record describes every perturbation of the hardware (see the assumptions), \
+             then with probability at least {confidence}, at every recorded time and jointly with \
+             every other observable of this certificate, the ideal-model value of {observable} \
+             lies within the reported interval."
+        ),
+        Simultaneity::Pointwise => format!(
+            "If the noise record describes every perturbation of the hardware (see the assumptions), \
+             then at each recorded time separately, with probability at least {confidence}, the \
+             ideal-model value of {observable} lies within the interval reported for that time; \
+             the statement is not simultaneous over times or observables."
+        ),
+    }
+}
+
+/// What the bounds assume (bounds.md §1).
+pub fn assumptions() -> Vec<&'static str> {
+    vec![
+        "The hardware evolves under the target Hamiltonian plus the noise record's sources: H(g) = H + sum_i delta_i (mu_i + g_i) V_i, constant during one evolution.",
+        "The random parts g_i of different sources are independent, have zero mean and follow the declared families; known offsets mu_i are within their stated uncertainties.",
+        "The noise is drawn again as the record's `redrawn` says (every shot, every realization, or once for the whole dataset).",
+        "The operator spectra, amplitudes and units of the noise record and the run file are correct.",
+        "Each reported value is the mean of the stated number of independent projective shots whose outcomes lie in [spectrum_min, spectrum_max] (or, where standard errors are given instead, its error is approximately normal with that standard error).",
+        "The fidelity bound assumes a pure initial state.",
+    ]
+}
+
+/// What the model does not cover, stated in every certificate (bounds.md §1).
+pub fn not_covered() -> Vec<&'static str> {
+    vec![
+        "Decoherence and other incoherent (Markovian) errors.",
+        "State-preparation and measurement errors.",
+        "Leakage out of the modelled Hilbert space.",
+        "Noise that is correlated between sources, or that varies during one evolution.",
+        "Errors in the target Hamiltonian itself: the interval is for the ideal model's value, not for nature's.",
+    ]
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_claim_names_the_observable_the_probability_and_the_scope() {
+        let s = claim_sentence("Z_5", 0.95, Simultaneity::Simultaneous);
+        assert!(s.contains("with probability at least 0.95, at every recorded time"));
+        assert!(s.contains("ideal-model value of Z_5 lies within the reported interval"));
+        let p = claim_sentence("Z_5", 0.9, Simultaneity::Pointwise);
+        assert!(p.contains("at each recorded time separately, with probability at least 0.9,"));
+        assert!(p.contains("not simultaneous"));
+    }
+
+    #[test]
+    fn what_is_not_covered_includes_the_three_named_gaps() {
+        let all = not_covered().join(" ");
+        for gap in ["Decoherence", "preparation and measurement", "correlated"] {
+            assert!(all.contains(gap), "{gap}");
+        }
+    }
+}

@@ -1,0 +1,195 @@
+//! The whole certificate file: format, digest, body and envelope; sealing and reading.
+//!
+//! `digest` is the SHA-256 (lowercase hex) of the RFC 8785 form of `body`. The file itself is
+//! pretty-printed for people; verification re-canonicalises the body, so whitespace and member
+//! order in the file do not matter, while any change to a value does. The `envelope` records
+//! what does not follow from the inputs (issue time, host, command line) and is not covered.
+
+use std::path::Path;
+
+use serde_json::{json, Value};
+
+use super::body::{FORMAT, FORMAT_VERSION};
+use super::canonical::to_canonical_bytes;
+use super::hash::sha256_hex;
+use crate::error::{Error, InputKind, Problem, Result};
+
+/// A sealed certificate.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Certificate {
+    pub body: Value,
+    /// SHA-256 of the canonical body, as recorded in the file.
+    pub digest: String,
+    pub envelope: Value,
+}
+
+/// The digest of a body: SHA-256 of its RFC 8785 form; `None` if it has no canonical form.
+pub fn body_digest(body: &Value) -> Option<String> {
+    to_canonical_bytes(body).ok().map(|b| sha256_hex(&b))
+}
+
+impl Certificate {
+    /// Seals `body` with its digest and the given envelope.
+    pub fn seal(body: Value, envelope: Value) -> Result<Certificate> {
+        let digest = body_digest(&body).ok_or_else(|| {
+            Error::Options("internal: the certificate body holds a non-finite number".into())
+        })?;
+        Ok(Certificate {
+            body,
+            digest,
+            envelope,
+        })
+    }
+
+    /// The file's text: pretty-printed JSON with a final newline.
+    pub fn to_file_text(&self) -> String {
+        let v = json!({
+            "format": FORMAT,
+            "format_version": FORMAT_VERSION,
+            "digest": self.digest,
+            "digest_method": "SHA-256 of the RFC 8785 (JSON Canonicalization Scheme) form of body",
+            "body": self.body,
+            "envelope": self.envelope,
+        });
+        let mut s = serde_json::to_string_pretty(&v).unwrap_or_default();
+        s.push('\n');
+        s
+    }
+
+    /// Reads a certificate file; problems of its outer structure are input errors.
+    pub fn read(path: &Path) -> Result<Certificate> {
+        let bytes = std::fs::read(path).map_err(|source| Error::Read {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        let bad = |p: &str, m: String| Error::input(InputKind::Certificate, path, p, m);
+        let text = String::from_utf8(bytes).map_err(|e| {
+            bad(
+                "/",
+                format!("is not UTF-8 text (byte {})", e.utf8_error().valid_up_to()),
+            )
+        })?;
+        let v: Value = serde_json::from_str(&text).map_err(|e| {
+            bad(
+                "/",
+                format!(
+                    "is not valid JSON: {e} (line {}, column {})",
+                    e.line(),
+                    e.column()
+                ),
+            )
+        })?;
+        let mut problems = Vec::new();
+        if v.get("format").and_then(Value::as_str) != Some(FORMAT) {
+            problems.push(Problem::new(
+                "/format",
+                format!("must be \"{FORMAT}\"; this is not a quassay certificate"),
+            ));
+        }
+        if v.get("format_version").and_then(Value::as_u64) != Some(FORMAT_VERSION) {
+            problems.push(Problem::new(
+                "/format_version",
+                format!("must be {FORMAT_VERSION}; this version of quassay reads only version {FORMAT_VERSION}"),
+            ));
+        }
+        let digest = v.get("digest").and_then(Value::as_str).map(str::to_owned);
+        if digest.is_none() {
+            problems.push(Problem::new("/digest", "is missing or not a string"));
+        }
+        let body = v.get("body").filter(|b| b.is_object()).cloned();
+        if body.is_none() {
+            problems.push(Problem::new("/body", "is missing or not an object"));
+        }
+        match (digest, body, problems.is_empty()) {
+            (Some(digest), Some(body), true) => Ok(Certificate {
+                body,
+                digest,
+                envelope: v.get("envelope").cloned().unwrap_or(Value::Null),
+            }),
+            _ => Err(Error::Input {
+                kind: InputKind::Certificate,
+                file: path.to_path_buf(),
+                problems,
+            }),
+        }
+    }
+
+    /// Whether the recorded digest is the digest of the body as it stands.
+    pub fn digest_matches(&self) -> bool {
+        body_digest(&self.body).as_deref() == Some(self.digest.as_str())
+    }
+}
+
+/// The envelope of a certificate issued now.
+pub fn envelope_now() -> Value {
+    let host = std::fs::read_to_string("/etc/hostname")
+        .map(|s| s.trim().to_owned())
+        .ok()
+        .filter(|s| !s.is_empty())
+        .or_else(|| std::env::var("HOSTNAME").ok())
+        .unwrap_or_else(|| "unknown".into());
+    json!({
+        "issued_at": utc_now_rfc3339(),
+        "host": host,
+        "command_line": std::env::args().collect::<Vec<_>>(),
+        "note": "the envelope is not covered by the digest",
+    })
+}
+
+/// The current time as `YYYY-MM-DDTHH:MM:SSZ` (RFC 3339, UTC).
+pub fn utc_now_rfc3339() -> String {
+    let secs = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map(|d| d.as_secs())
+        .unwrap_or(0);
+    rfc3339_from_unix(secs)
+}
+
+/// Formats Unix seconds as RFC 3339 UTC, by the civil-from-days algorithm (proleptic
+/// Gregorian calendar).
+pub fn rfc3339_from_unix(secs: u64) -> String {
+    let days = (secs / 86_400) as i64;
+    let rem = secs % 86_400;
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = yoe + era * 400 + i64::from(m <= 2);
+    format!(
+        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
+        rem / 3600,
+        (rem / 60) % 60,
+        rem % 60
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn unix_times_format_as_rfc_3339() {
+        // Reference points: the Unix epoch; 2000-03-01 (after a leap day of a century year
+        // divisible by 400) is 951868800 s; 2026-12-01T00:00:00Z is 1796083200 s (both computed
+        // with Python's datetime.datetime(..., tzinfo=timezone.utc).timestamp()).
+        assert_eq!(rfc3339_from_unix(0), "1970-01-01T00:00:00Z");
+        assert_eq!(rfc3339_from_unix(951_868_800), "2000-03-01T00:00:00Z");
+        assert_eq!(
+            rfc3339_from_unix(1_796_083_200 + 3_723),
+            "2026-12-01T01:02:03Z"
+        );
+    }
+
+    #[test]
+    fn a_changed_body_no_longer_matches_its_digest() {
+        let c = Certificate::seal(json!({"a": 1, "b": [0.5, "x"]}), json!({})).unwrap();
+        assert!(c.digest_matches());
+        let mut altered = c.clone();
+        altered.body["a"] = json!(2);
+        assert!(!altered.digest_matches());
+    }
+}

@@ -1,0 +1,290 @@
+//! `quassay certify`: bounds and certificate for one run, and a compact summary table.
+
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+
+use serde_json::{json, Value};
+
+use super::args::CertifyArgs;
+use super::{print_stdout, Outcome};
+use crate::bounds::confidence::Simultaneity;
+use crate::certificate::body::CertifyOptions;
+use crate::certificate::certify::{compute_body, Computed};
+use crate::certificate::document::{envelope_now, Certificate};
+use crate::certificate::record::recorded_name;
+use crate::outputs::atomic::{check_free, write_bytes};
+
+/// The default certificate path: `RUN.cert.json` beside the run (`run.h5` → `run.cert.json`).
+pub fn default_output(run: &Path) -> PathBuf {
+    let stem = run
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "run".into());
+    run.with_file_name(format!("{stem}.cert.json"))
+}
+
+/// A short note on standard error while the work runs, only when it is a terminal.
+struct Progress(bool);
+
+impl Progress {
+    fn say(&self, what: &str) {
+        if self.0 {
+            eprint!("\r\x1b[2Kcertify: {what}");
+        }
+    }
+    fn done(&self) {
+        if self.0 {
+            eprint!("\r\x1b[2K");
+        }
+    }
+}
+
+/// Runs `certify`.
+pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
+    let output = args
+        .output
+        .clone()
+        .unwrap_or_else(|| default_output(&args.run));
+    // Refuse early, before any work, if the certificate exists; checked again at the rename.
+    check_free(&output, args.force)?;
+    let options = CertifyOptions {
+        confidence: args.confidence,
+        simultaneity: if args.pointwise {
+            Simultaneity::Pointwise
+        } else {
+            Simultaneity::Simultaneous
+        },
+        check_level: args.check_level,
+    };
+    let progress = Progress(std::io::stderr().is_terminal());
+    progress.say("reading and hashing the inputs, computing the bounds");
+    let (run_name, run_below) = recorded_name(&args.run, &output);
+    let (noise_name, noise_below) = recorded_name(&args.noise, &output);
+    let computed = compute_body(&args.run, &args.noise, run_name, noise_name, &options);
+    progress.done();
+    let computed = computed?;
+    let cert = Certificate::seal(computed.body.clone(), envelope_now())?;
+    write_bytes(&output, args.force, cert.to_file_text().as_bytes())?;
+    let mut notes = Vec::new();
+    if !(run_below && noise_below) {
+        notes.push(
+            "an input is not inside the certificate's folder, so it is recorded by its file name: \
+             verify with --inputs DIR, DIR holding the inputs"
+                .to_string(),
+        );
+    }
+    let text = if args.json {
+        let mut s = serde_json::to_string_pretty(&summary_json(&output, &cert, &computed, &notes))
+            .unwrap_or_default();
+        s.push('\n');
+        s
+    } else {
+        summary_text(&output, &cert, &computed, &notes)
+    };
+    print_stdout(&text)?;
+    Ok(Outcome::Success)
+}
+
+/// One row of the summary: the observable's worst time and the numbers there.
+struct Row {
+    name: String,
+    worst_time: f64,
+    e_avg: f64,
+    e_shot: f64,
+    e_wc: f64,
+    gain: f64,
+}
+
+fn rows(c: &Computed) -> Vec<Row> {
+    c.bounds
+        .observables
+        .iter()
+        .map(|o| {
+            // The worst time: the largest half-width E_avg + E_shot, earliest on ties.
+            let mut k = 0;
+            for (j, p) in o.points.iter().enumerate() {
+                if p.half_width > o.points[k].half_width {
+                    k = j;
+                }
+            }
+            let p = o.points.get(k);
+            let e_avg = p.map_or(0.0, |p| p.e_avg);
+            let e_wc = p.map_or(0.0, |p| p.e_wc);
+            Row {
+                name: o.name.clone(),
+                worst_time: c.loaded.run.times.get(k).copied().unwrap_or(0.0),
+                e_avg,
+                e_shot: p.map_or(0.0, |p| p.e_shot),
+                e_wc,
+                gain: if e_avg > 0.0 { e_wc / e_avg } else { f64::NAN },
+            }
+        })
+        .collect()
+}
+
+/// A number for the table: three significant digits, `unbounded` for infinity.
+fn show(x: f64) -> String {
+    if x.is_infinite() {
+        "unbounded".into()
+    } else if x.is_nan() {
+        "-".into()
+    } else if x == 0.0 {
+        "0".into()
+    } else if (1e-3..1e4).contains(&x.abs()) {
+        format!("{:.4}", x)
+            .trim_end_matches('0')
+            .trim_end_matches('.')
+            .to_string()
+    } else {
+        format!("{x:.3e}")
+    }
+}
+
+fn last_fidelity(c: &Computed) -> String {
+    match c.bounds.fidelity.last() {
+        Some(f) if f.vacuous => "vacuous".into(),
+        Some(f) => show(f.f_low),
+        None => "-".into(),
+    }
+}
+
+fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String]) -> String {
+    let run = &c.loaded.run;
+    let unit = run.time_unit.as_str();
+    let split = &c.bounds.split;
+    let mut s = format!(
+        "certificate {} written (digest {})\n",
+        output.display(),
+        &cert.digest
+    );
+    s.push_str(&format!(
+        "run {}: {} sites, {} times, {} realizations; noise redrawn {}, {} source instances\n",
+        run.run_id,
+        run.n_sites(),
+        run.n_times(),
+        run.n_realizations(),
+        c.loaded.model.redrawn.as_str().replace('_', " "),
+        c.loaded.model.instances.len(),
+    ));
+    s.push_str(&format!(
+        "claim: confidence {} ({}, {} points), global statement at every time\n\n",
+        split.confidence,
+        split.simultaneity.as_str(),
+        split.points
+    ));
+    let header = [
+        "observable",
+        "worst t",
+        "E_avg",
+        "E_shot",
+        "worst case",
+        "gain",
+        "F_low(last t)",
+    ];
+    let fid = last_fidelity(c);
+    let mut table: Vec<[String; 7]> = vec![header.map(String::from)];
+    for r in rows(c) {
+        table.push([
+            r.name,
+            format!("{} {unit}", show(r.worst_time)),
+            show(r.e_avg),
+            show(r.e_shot),
+            show(r.e_wc),
+            if r.gain.is_infinite() {
+                "unbounded".into()
+            } else {
+                format!("{}x", show(r.gain))
+            },
+            fid.clone(),
+        ]);
+    }
+    let widths: Vec<usize> = (0..7)
+        .map(|j| {
+            table
+                .iter()
+                .map(|row| row[j].chars().count())
+                .max()
+                .unwrap_or(0)
+        })
+        .collect();
+    for row in &table {
+        let cells: Vec<String> = row
+            .iter()
+            .zip(&widths)
+            .enumerate()
+            .map(|(j, (cell, w))| {
+                if j == 0 {
+                    format!("{cell:<w$}")
+                } else {
+                    format!("{cell:>w$}")
+                }
+            })
+            .collect();
+        s.push_str(cells.join("  ").trim_end());
+        s.push('\n');
+    }
+    s.push_str(
+        "\nE_avg: error of the averaged trace from the noise; E_shot: from the finite shots; \
+         worst case: no cancellation between sources; gain: worst case / E_avg.\n",
+    );
+    s.push_str("consistency of the data with the noise record: not tested in this version\n");
+    for n in notes {
+        s.push_str(&format!("note: {n}\n"));
+    }
+    s
+}
+
+fn summary_json(output: &Path, cert: &Certificate, c: &Computed, notes: &[String]) -> Value {
+    use crate::certificate::body::num;
+    let observables: Vec<Value> = rows(c)
+        .into_iter()
+        .map(|r| {
+            json!({
+                "name": r.name,
+                "worst_time": num(r.worst_time),
+                "e_avg": num(r.e_avg),
+                "e_shot": num(r.e_shot),
+                "e_wc": num(r.e_wc),
+                "gain": num(r.gain),
+            })
+        })
+        .collect();
+    let last = c.bounds.fidelity.last();
+    json!({
+        "certificate": output.display().to_string(),
+        "digest": cert.digest,
+        "time_unit": c.loaded.run.time_unit.as_str(),
+        "verdict": cert.body["verdict"]["status"],
+        "observables": observables,
+        "fidelity_last_time": {
+            "f_low": last.map_or(Value::Null, |f| num(f.f_low)),
+            "vacuous": last.map(|f| f.vacuous),
+        },
+        "notes": notes,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_default_certificate_sits_beside_the_run() {
+        assert_eq!(
+            default_output(Path::new("data/run7.h5")),
+            PathBuf::from("data/run7.cert.json")
+        );
+        assert_eq!(
+            default_output(Path::new("run")),
+            PathBuf::from("run.cert.json")
+        );
+    }
+
+    #[test]
+    fn table_numbers_are_short() {
+        assert_eq!(show(0.012345), "0.0123");
+        assert_eq!(show(2.0), "2");
+        assert_eq!(show(1.5e-5), "1.500e-5");
+        assert_eq!(show(f64::INFINITY), "unbounded");
+    }
+}
