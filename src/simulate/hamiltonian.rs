@@ -80,24 +80,60 @@ impl PauliSum {
     }
 }
 
+/// How the amplitude of one group depends on the basis state.
+#[derive(Debug, Clone)]
+enum Amplitude {
+    /// The same for every state (one string without Z part, e.g. a transverse field).
+    Constant(Complex64),
+    /// Real for every state (an even number of Y in every string, e.g. XX + YY): `(z, c)`.
+    Real(Vec<(u64, f64)>),
+    /// General: `(z, c · i^{n_Y})`.
+    General(Vec<(u64, Complex64)>),
+}
+
 /// One group of off-diagonal terms that share an X mask.
 #[derive(Debug, Clone)]
 struct Group {
     x: u64,
-    /// `(z mask, c_t · i^{n_Y})` per distinct string, in mask order.
-    terms: Vec<(u64, Complex64)>,
+    amplitude: Amplitude,
 }
 
 impl Group {
+    fn new(x: u64, terms: Vec<(u64, Complex64)>) -> Group {
+        let amplitude = if terms.len() == 1 && terms[0].0 == 0 {
+            Amplitude::Constant(terms[0].1)
+        } else if terms.iter().all(|(_, c)| c.im == 0.0) {
+            Amplitude::Real(terms.iter().map(|&(z, c)| (z, c.re)).collect())
+        } else {
+            Amplitude::General(terms)
+        };
+        Group { x, amplitude }
+    }
+
     /// The amplitude of `|c⟩ → |c ⊕ x⟩`.
     #[inline]
     fn amplitude(&self, c: u64) -> Complex64 {
-        let mut a = Complex64::new(0.0, 0.0);
-        for &(z, coef) in &self.terms {
-            a += coef * parity_sign(c, z);
+        match &self.amplitude {
+            Amplitude::Constant(a) => *a,
+            Amplitude::Real(terms) => Complex64::new(real_amplitude(terms, c), 0.0),
+            Amplitude::General(terms) => {
+                let mut a = Complex64::new(0.0, 0.0);
+                for &(z, coef) in terms {
+                    a += coef * parity_sign(c, z);
+                }
+                a
+            }
         }
-        a
     }
+}
+
+#[inline]
+fn real_amplitude(terms: &[(u64, f64)], c: u64) -> f64 {
+    let mut a = 0.0;
+    for &(z, coef) in terms {
+        a += coef * parity_sign(c, z);
+    }
+    a
 }
 
 /// A compiled operator on `n` qubits, ready to be applied matrix-free.
@@ -145,7 +181,7 @@ impl Operator {
         }
         let groups: Vec<Group> = by_x
             .into_iter()
-            .map(|(x, terms)| Group { x, terms })
+            .map(|(x, terms)| Group::new(x, terms))
             .collect();
         let (dmin, dmax) = diagonal
             .iter()
@@ -154,10 +190,10 @@ impl Operator {
             });
         let mut off = 0.0;
         for g in &groups {
-            let mut m = 0.0f64;
-            for c in 0..dim as u64 {
-                m = m.max(g.amplitude(c).norm());
-            }
+            let m = match &g.amplitude {
+                Amplitude::Constant(a) => a.norm(),
+                _ => (0..dim as u64).fold(0.0f64, |m, c| m.max(g.amplitude(c).norm())),
+            };
             off += m;
         }
         // A relative slack of 1e-12 covers the rounding of the sums above.
@@ -196,18 +232,39 @@ impl Operator {
         beta: f64,
         gamma: f64,
     ) {
+        // Diagonal part first, then one streaming pass per group (group-outer order keeps the
+        // inner loops free of dispatch). The order of additions is fixed, so results are
+        // deterministic.
         for (b, o) in out.iter_mut().enumerate() {
-            let mut acc = psi[b] * self.diagonal[b];
-            for g in &self.groups {
-                let c = b as u64 ^ g.x;
-                acc += g.amplitude(c) * psi[c as usize];
-            }
             let keep = if gamma == 0.0 {
                 Complex64::new(0.0, 0.0)
             } else {
                 *o * gamma
             };
-            *o = acc * alpha + psi[b] * beta + keep;
+            *o = psi[b] * (alpha * self.diagonal[b] + beta) + keep;
+        }
+        for g in &self.groups {
+            let x = g.x as usize;
+            match &g.amplitude {
+                Amplitude::Constant(a) => {
+                    let a = *a * alpha;
+                    for (b, o) in out.iter_mut().enumerate() {
+                        *o += a * psi[b ^ x];
+                    }
+                }
+                Amplitude::Real(terms) => {
+                    for (b, o) in out.iter_mut().enumerate() {
+                        let c = b ^ x;
+                        *o += psi[c] * (alpha * real_amplitude(terms, c as u64));
+                    }
+                }
+                Amplitude::General(_) => {
+                    for (b, o) in out.iter_mut().enumerate() {
+                        let c = b ^ x;
+                        *o += g.amplitude(c as u64) * psi[c] * alpha;
+                    }
+                }
+            }
         }
     }
 
