@@ -393,3 +393,19 @@ fn existing_outputs_are_kept_without_force() {
         .success();
     assert_eq!(entries(&out), ["noise.json", "run.h5", "truth.h5"]);
 }
+
+#[test]
+fn the_schema_accepts_the_test_scenario_and_rejects_an_unknown_key() {
+    let text =
+        std::fs::read_to_string(crate::util::repo().join("schemas/scenario.schema.json")).unwrap();
+    let schema: Value = serde_json::from_str(&text).unwrap();
+    assert!(jsonschema::meta::is_valid(&schema));
+    let validator = jsonschema::draft202012::new(&schema).unwrap();
+    assert!(validator.is_valid(&chain_scenario()));
+    let mut v = chain_scenario();
+    v["hamiltonain"] = json!({});
+    assert!(!validator.is_valid(&v));
+    let mut v = chain_scenario();
+    v["noise"]["sources"][0]["operator"] = json!("Q");
+    assert!(!validator.is_valid(&v));
+}
