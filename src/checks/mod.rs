@@ -1,1 +1,3 @@
 //! Consistency of the data with the noise record (bounds.md §6).
+
+pub mod chi_square;
