@@ -2,6 +2,7 @@
 
 mod util;
 
+mod certify;
 mod noise_record;
 mod run_file;
 mod simulate;

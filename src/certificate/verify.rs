@@ -4,6 +4,13 @@
 //! folder); each input's size and SHA-256; then the whole body recomputed with the recorded
 //! options and compared byte for byte in canonical form. The first failure is reported with
 //! the JSON pointer of the first field that differs.
+//!
+//! A repacked run (same numbers, other chunking, compression, byte order or float width) has
+//! other bytes but the same content digests (formats.md). When the run's size or SHA-256
+//! differ, verification goes on: it fails if any dataset's content digest differs, and
+//! otherwise compares the recomputed body with everything except `/inputs/run/size` and
+//! `/inputs/run/sha256`, and says that the file was repacked. The noise record (a small text
+//! file) must match byte for byte.
 
 use std::path::{Path, PathBuf};
 
@@ -22,6 +29,9 @@ use crate::error::{Error, InputKind, Result};
 pub struct VerifyReport {
     /// Whether everything reproduced.
     pub reproduces: bool,
+    /// Whether the run file's bytes differ from the recorded ones while the content digest of
+    /// every dataset and everything else in the body reproduce (the file was repacked).
+    pub repacked: bool,
     /// What was checked, one line each, in order; the last says what failed, if anything.
     pub lines: Vec<String>,
 }
@@ -89,6 +99,22 @@ pub fn first_difference(a: &Value, b: &Value) -> Option<(String, String, String)
     walk(a, b, &mut String::new())
 }
 
+/// ` (dataset /observables/x/values)` for a pointer `/<index>/...` into a datasets array.
+fn dataset_named(datasets: &Value, ptr: &str) -> String {
+    let index = ptr
+        .trim_start_matches('/')
+        .split('/')
+        .next()
+        .and_then(|i| i.parse::<usize>().ok());
+    match index
+        .and_then(|i| datasets.get(i))
+        .and_then(|d| d["path"].as_str())
+    {
+        Some(p) => format!(" (dataset {p})"),
+        None => String::new(),
+    }
+}
+
 fn recorded_options(cert_path: &Path, body: &Value) -> Result<CertifyOptions> {
     let o = &body["options"];
     let bad = |p: &str, m: &str| Error::input(InputKind::Certificate, cert_path, p, m);
@@ -144,6 +170,7 @@ pub fn verify(cert_path: &Path, inputs_dir: Option<&Path>) -> Result<VerifyRepor
         lines.push(why);
         Ok(VerifyReport {
             reproduces: false,
+            repacked: false,
             lines,
         })
     };
@@ -162,6 +189,9 @@ pub fn verify(cert_path: &Path, inputs_dir: Option<&Path>) -> Result<VerifyRepor
         },
     };
     let mut resolved = Vec::new();
+    // A run whose bytes changed may only have been repacked; that is decided below from the
+    // content digests of its datasets (formats.md: repacking must not break verification).
+    let mut run_bytes_changed: Option<(FileRecord, FileRecord)> = None;
     for role in ["run", "noise_record"] {
         let rec = recorded_file(cert_path, &cert.body, role)?;
         let path = match resolve_recorded(&base, &rec.path) {
@@ -170,6 +200,11 @@ pub fn verify(cert_path: &Path, inputs_dir: Option<&Path>) -> Result<VerifyRepor
         };
         let now = FileRecord::of(&path, rec.path.clone())?;
         if now.size != rec.size || now.sha256 != rec.sha256 {
+            if role == "run" {
+                run_bytes_changed = Some((rec.clone(), now));
+                resolved.push((path, rec.path));
+                continue;
+            }
             return fail(
                 lines,
                 format!(
@@ -188,13 +223,56 @@ pub fn verify(cert_path: &Path, inputs_dir: Option<&Path>) -> Result<VerifyRepor
     let options = recorded_options(cert_path, &cert.body)?;
     let (noise, noise_name) = resolved.pop().unwrap_or_default();
     let (run, run_name) = resolved.pop().unwrap_or_default();
-    let recomputed = compute_body(&run, &noise, run_name, noise_name, &options)?;
+    let computed = compute_body(&run, &noise, run_name, noise_name, &options);
+    let mut recomputed = match (computed, &run_bytes_changed) {
+        (Ok(c), _) => c,
+        // The run's bytes changed and it no longer reads as a valid run: it has changed.
+        (Err(e), Some((rec, now))) => {
+            return fail(
+                lines,
+                format!(
+                    "FAILED: input `run` '{}' has changed (recorded {} bytes, SHA-256 {}; found {} bytes, SHA-256 {}) and no longer reads as a valid run: {e}",
+                    run.display(), rec.size, rec.sha256, now.size, now.sha256
+                ),
+            )
+        }
+        (Err(e), None) => return Err(e),
+    };
+    let mut repacked = false;
+    if let Some((rec, now)) = &run_bytes_changed {
+        let recorded = &cert.body["inputs"]["run"]["datasets"];
+        let found = &recomputed.body["inputs"]["run"]["datasets"];
+        if let Some((ptr, a, b)) = first_difference(recorded, found) {
+            return fail(
+                lines,
+                format!(
+                    "FAILED: input `run` '{}' has changed: recorded {} bytes, SHA-256 {}; found {} bytes, SHA-256 {}; its content differs from the recorded one at /body/inputs/run/datasets{ptr}{}: the certificate says {a}, the file gives {b}",
+                    run.display(), rec.size, rec.sha256, now.size, now.sha256,
+                    dataset_named(recorded, &ptr),
+                ),
+            );
+        }
+        lines.push(format!(
+            "input `run` '{}': the file's bytes differ from the recorded ones (recorded {} bytes, SHA-256 {}; found {} bytes, SHA-256 {}), but the content digest of every dataset matches: the file was repacked, its numbers are unchanged",
+            run.display(), rec.size, rec.sha256, now.size, now.sha256
+        ));
+        // The body records the file's size and SHA-256; a repacked file has its own, so those
+        // two members (and only those) are taken from the certificate before comparing.
+        recomputed.body["inputs"]["run"]["size"] = cert.body["inputs"]["run"]["size"].clone();
+        recomputed.body["inputs"]["run"]["sha256"] = cert.body["inputs"]["run"]["sha256"].clone();
+        repacked = true;
+    }
     let ours = to_canonical_bytes(&recomputed.body).ok();
     let theirs = to_canonical_bytes(&cert.body).ok();
     if ours.is_some() && ours == theirs {
-        lines.push("the body recomputed from the inputs is identical, byte for byte".into());
+        lines.push(if repacked {
+            "the body recomputed from the inputs is identical, byte for byte, apart from /body/inputs/run/size and /body/inputs/run/sha256 (those of the repacked file)".into()
+        } else {
+            "the body recomputed from the inputs is identical, byte for byte".into()
+        });
         return Ok(VerifyReport {
             reproduces: true,
+            repacked,
             lines,
         });
     }

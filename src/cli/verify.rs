@@ -13,6 +13,7 @@ pub fn run(args: &VerifyArgs) -> crate::Result<Outcome> {
         let mut s = serde_json::to_string_pretty(&json!({
             "certificate": args.certificate.display().to_string(),
             "reproduces": report.reproduces,
+            "repacked": report.repacked,
             "steps": report.lines,
         }))
         .unwrap_or_default();
