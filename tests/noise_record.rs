@@ -514,3 +514,127 @@ fn the_example_in_the_user_documentation_is_a_valid_record() {
         .unwrap();
     assert!((m.instances[0].delta - 0.0251).abs() < 5e-5);
 }
+
+/// Runs `quassay certify` on the h5py fixture run with the record `record` copied beside it,
+/// and asserts exit 1, a message naming the record's file and `pointer`, and that nothing was
+/// written into the folder.
+fn certify_rejects(record: &Path, pointer: &str) {
+    let dir = crate::util::scratch();
+    let run = dir.path().join("run.h5");
+    std::fs::copy(reference("h5py/run_f32_gzip.h5"), &run).unwrap();
+    let noise = dir.path().join(name(record));
+    std::fs::copy(record, &noise).unwrap();
+    let before = crate::util::entries(dir.path());
+    let out = crate::util::quassay()
+        .arg("certify")
+        .arg(&run)
+        .arg("--noise")
+        .arg(&noise)
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{}: {stderr}", name(record));
+    assert!(
+        stderr.contains(&name(record)),
+        "{}: the message does not name the file: {stderr}",
+        name(record)
+    );
+    assert!(
+        stderr.contains(pointer),
+        "{}: the message does not name {pointer}: {stderr}",
+        name(record)
+    );
+    assert_eq!(crate::util::entries(dir.path()), before, "{}", name(record));
+}
+
+/// The user-facing side of the tables above: `certify` refuses every broken record with exit
+/// code 1, the file and the JSON pointer in its message, and writes nothing.
+#[test]
+fn certify_refuses_every_broken_record_and_writes_nothing() {
+    for (file, pointer, _) in INVALID {
+        certify_rejects(&reference("noise/invalid").join(file), pointer);
+    }
+    for (file, pointer, _) in PARSER_ONLY {
+        certify_rejects(&reference("noise/invalid-parser-only").join(file), pointer);
+    }
+}
+
+/// Expansion against the run (the fixture is a 4-site chain): a listed site beyond the run's
+/// sites, and `each_bond` on a run whose lattice has no bonds, each fail through `certify`.
+#[test]
+fn certify_refuses_records_that_do_not_fit_the_run() {
+    let dir = crate::util::scratch();
+    let out_of_range = dir.path().join("site-seven.json");
+    let mut v: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(reference("noise/valid/minimal.json")).unwrap(),
+    )
+    .unwrap();
+    v["sources"][0]["acts_on"] = serde_json::json!({"sites": [[1], [7]]});
+    std::fs::write(&out_of_range, v.to_string()).unwrap();
+    certify_rejects(&out_of_range, "/sources/0/acts_on/sites/1/0");
+
+    // A one-site graph has no bonds.
+    use quassay::model::run::{Hamiltonian, Observable, Run, Shots};
+    use quassay::model::units::FrequencyUnit;
+    use quassay::outputs::run_file::{write_run, WriteOptions};
+    let run = Run {
+        run_id: "invented-single-site".into(),
+        time_unit: TimeUnit::Us,
+        description: None,
+        times: vec![0.0, 1.0],
+        lattice: Lattice::graph(1, &[], Boundary::Open).unwrap(),
+        hamiltonian: Hamiltonian {
+            energy_unit: FrequencyUnit::MHz,
+            bond_norm_max: 0.0,
+            bond_norms: None,
+            interaction_range: 1,
+        },
+        observables: vec![Observable {
+            name: "Z_0".into(),
+            values: ndarray::Array2::zeros((2, 2)),
+            shots: Shots::Uniform(100),
+            stderr: None,
+            ideal: None,
+            support: vec![0],
+            spectrum_min: -1.0,
+            spectrum_max: 1.0,
+            description: None,
+            terms: None,
+        }],
+    };
+    let bondless = dir.path().join("bondless.h5");
+    write_run(&bondless, &run, &WriteOptions::default()).unwrap();
+    let bonds = dir.path().join("each-bond.json");
+    let mut v = serde_json::json!({
+        "format": "quassay-noise", "format_version": 1, "frequency_unit": "kHz",
+        "redrawn": "once",
+        "sources": [{"name": "coupling", "acts_on": "each_bond", "operator_spectrum": [-1.0, 1.0],
+                     "amplitude": 1.0, "distribution": {"family": "two_point"}}]
+    });
+    std::fs::write(&bonds, v.to_string()).unwrap();
+    let before = crate::util::entries(dir.path());
+    let out = crate::util::quassay()
+        .args(["certify"])
+        .arg(&bondless)
+        .arg("--noise")
+        .arg(&bonds)
+        .output()
+        .unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{stderr}");
+    assert!(
+        stderr.contains("each-bond.json") && stderr.contains("/sources/0/acts_on"),
+        "{stderr}"
+    );
+    assert!(stderr.contains("no bonds"), "{stderr}");
+    assert_eq!(crate::util::entries(dir.path()), before);
+    v["sources"][0]["acts_on"] = serde_json::json!("each_site");
+    std::fs::write(&bonds, v.to_string()).unwrap();
+    crate::util::quassay()
+        .args(["certify"])
+        .arg(&bondless)
+        .arg("--noise")
+        .arg(&bonds)
+        .assert()
+        .success();
+}
