@@ -84,7 +84,8 @@ impl Case {
         self.dir.path().join(name)
     }
 
-    /// `quassay certify run.h5 --noise noise.json ARGS`: must succeed; returns standard output.
+    /// `quassay certify run.h5 --noise noise.json ARGS`: must succeed, and the certificate it
+    /// wrote (`-o` or the default `run.cert.json`) must pass [`certified`]; returns stdout.
     fn certify(&self, args: &[&str]) -> String {
         let out = quassay()
             .arg("certify")
@@ -94,6 +95,11 @@ impl Case {
             .args(args)
             .assert()
             .code(0);
+        let written = match args.iter().position(|a| *a == "-o") {
+            Some(i) => PathBuf::from(args[i + 1]),
+            None => self.path("run.cert.json"),
+        };
+        certified(&written);
         String::from_utf8(out.get_output().stdout.clone()).unwrap()
     }
 
