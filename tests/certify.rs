@@ -491,28 +491,26 @@ fn an_unbounded_family_is_written_as_unbounded_where_the_schema_allows_it() {
         }]
     });
     std::fs::write(c.path("noise.json"), record.to_string()).unwrap();
-    // The first time is moved from 0 to 0.25 us. Known defect (reported, in
-    // src/bounds/fidelity.rs): at t = 0 an unbounded family gives D_wc = 0 · ∞ = NaN, which the
-    // body writes as "undefined" and the schema rightly refuses; D_wc(0) should be 0.
-    {
-        let f = hdf5::File::open_rw(c.path("run.h5")).unwrap();
-        let ds = f.dataset("times").unwrap();
-        let mut t: ndarray::Array1<f64> = ds.read_1d().unwrap();
-        t[0] = 0.25;
-        ds.write(&t).unwrap();
-    }
     let cert = c.certify_to("c.json", &[]);
     let b = &cert["body"];
     assert_eq!(b["noise"]["sources"][0]["constants"]["b"], "unbounded");
     assert_eq!(b["noise"]["sources"][0]["constants"]["width"], "unbounded");
     assert_eq!(b["claim"]["probability_split"]["rule"], "all_to_shots");
     let z = observable(&cert, "Z_1");
+    // Regression: at t = 0 nothing has acted, so the worst cases are 0 there (not 0·∞ = NaN,
+    // which was once written as "undefined"); from the first t > 0 on they are unbounded.
+    assert_eq!(b["run"]["times"][0], 0.0);
+    assert_eq!(z["e_wc"][0], 0.0);
+    assert_eq!(b["fidelity"]["d_wc"][0], 0.0);
+    assert_eq!(b["fidelity"]["f_low"][0], 1.0);
     for k in 0..5 {
-        assert_eq!(z["e_wc"][k], "unbounded");
+        if k > 0 {
+            assert_eq!(z["e_wc"][k], "unbounded");
+            assert_eq!(b["fidelity"]["d_wc"][k], "unbounded");
+        }
         assert_eq!(z["fluctuation"][k], 0.0);
         assert_eq!(z["fluctuation_route"][k], Value::Null);
         assert_eq!(z["fluctuation_single_route"][k], "gaussian");
-        assert_eq!(b["fidelity"]["d_wc"][k], "unbounded");
     }
     verify(&c.path("c.json"), &[], 0);
 }

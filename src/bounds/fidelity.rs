@@ -98,11 +98,14 @@ pub fn fidelity_bound(sources: &[SourceData], t: f64, p: f64) -> FidelityBound {
         Some((v, r)) => (v, Some(r)),
         None => (f64::INFINITY, None),
     };
-    let d_systematic = t * sys;
-    let d_mean = t * var.sqrt();
-    let d_fluctuation = t * fluct;
+    // At t = 0 no perturbation has acted: D = 0 exactly, also when a factor is infinite
+    // (an unbounded family's worst case, or no fluctuation route); 0·∞ must not become NaN.
+    let scaled = |x: f64| if t == 0.0 { 0.0 } else { t * x };
+    let d_systematic = scaled(sys);
+    let d_mean = scaled(var.sqrt());
+    let d_fluctuation = scaled(fluct);
     let d_p = d_systematic + d_mean + d_fluctuation;
-    let d_wc = t * wc;
+    let d_wc = scaled(wc);
     let d = d_p.min(d_wc);
     let vacuous = d.is_nan() || d > std::f64::consts::SQRT_2;
     let f_low = if vacuous {
@@ -127,6 +130,22 @@ pub fn fidelity_bound(sources: &[SourceData], t: f64, p: f64) -> FidelityBound {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Regression: at t = 0 an unbounded family (worst case ∞) gave 0·∞ = NaN, written as
+    /// "undefined" in certificates. At t = 0 the state has not moved: F = 1 exactly.
+    #[test]
+    fn at_time_zero_the_bound_is_one_even_for_unbounded_families() {
+        let f = crate::model::noise::Family::Normal { sigma: 1.0 };
+        let s = SourceData {
+            family: f,
+            constants: crate::bounds::family::constants(&f),
+            delta: 0.3,
+            systematic: 0.0,
+        };
+        let b = fidelity_bound(&[s], 0.0, 0.01);
+        assert_eq!((b.d_wc, b.d_p, b.f_low, b.vacuous), (0.0, 0.0, 1.0, false));
+        assert!(fidelity_bound(&[s], 1.0, 0.01).d_wc.is_infinite());
+    }
     use crate::bounds::family;
     use crate::model::noise::Family;
     use rand::{Rng, SeedableRng};
