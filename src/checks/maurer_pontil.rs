@@ -71,10 +71,13 @@ mod tests {
         0
     }
 
+    /// A bounded law to draw from.
+    type Law<'a> = &'a dyn Fn(&mut rand_chacha::ChaCha20Rng) -> f64;
+
     /// Counts, over `trials` samples of `n` values, how often the lower bound (computed with
     /// the radius multiplied by `shrink`) exceeds the true σ.
     fn exceedances(
-        draw: &dyn Fn(&mut rand_chacha::ChaCha20Rng) -> f64,
+        draw: Law,
         sigma: f64,
         n: usize,
         delta: f64,
@@ -106,7 +109,7 @@ mod tests {
         let bern =
             |rng: &mut rand_chacha::ChaCha20Rng| f64::from(u8::from(rng.random::<f64>() < 0.05));
         let unif = |rng: &mut rand_chacha::ChaCha20Rng| rng.random::<f64>();
-        let cases: [(&dyn Fn(&mut rand_chacha::ChaCha20Rng) -> f64, f64); 2] = [
+        let cases: [(Law, f64); 2] = [
             (&bern, (0.05f64 * 0.95).sqrt()),
             (&unif, 1.0 / 12f64.sqrt()),
         ];
