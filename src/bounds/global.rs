@@ -250,12 +250,21 @@ pub fn shot_hoeffding(s_o: f64, shots: &[u64], alpha: f64) -> f64 {
     if shots.is_empty() || shots.contains(&0) || alpha.is_nan() || alpha <= 0.0 {
         return f64::INFINITY;
     }
-    let r = shots.len() as f64;
     let mut inv = 0.0;
     for &s in shots {
         inv += 1.0 / s as f64;
     }
-    s_o * (inv / (r * r)).sqrt() * (0.5 * (2.0 / alpha).ln()).sqrt()
+    shot_hoeffding_from_sum(s_o, shots.len(), inv, alpha)
+}
+
+/// [`shot_hoeffding`] from `inv_sum = Σ_r 1/S_r` (summed in realization order, every
+/// `S_r ≥ 1`), for callers that accumulate the sum while streaming the counts.
+pub fn shot_hoeffding_from_sum(s_o: f64, realizations: usize, inv_sum: f64, alpha: f64) -> f64 {
+    if realizations == 0 || alpha.is_nan() || alpha <= 0.0 {
+        return f64::INFINITY;
+    }
+    let r = realizations as f64;
+    s_o * (inv_sum / (r * r)).sqrt() * (0.5 * (2.0 / alpha).ln()).sqrt()
 }
 
 /// The normal-approximation shot term `z_{1−α/2} √(Σ_r se_r²) / R` (approximate: a
@@ -264,12 +273,20 @@ pub fn shot_normal(stderr: &[f64], alpha: f64) -> f64 {
     if stderr.is_empty() || alpha.is_nan() || alpha <= 0.0 {
         return f64::INFINITY;
     }
-    let r = stderr.len() as f64;
     let mut sum = 0.0;
     for &se in stderr {
         sum += se * se;
     }
-    super::quantiles::normal_upper_quantile(0.5 * alpha) * sum.sqrt() / r
+    shot_normal_from_sum(stderr.len(), sum, alpha)
+}
+
+/// [`shot_normal`] from `sq_sum = Σ_r se_r²` (summed in realization order).
+pub fn shot_normal_from_sum(realizations: usize, sq_sum: f64, alpha: f64) -> f64 {
+    if realizations == 0 || alpha.is_nan() || alpha <= 0.0 {
+        return f64::INFINITY;
+    }
+    let r = realizations as f64;
+    super::quantiles::normal_upper_quantile(0.5 * alpha) * sq_sum.sqrt() / r
 }
 
 /// The shot information of one (time, observable) point: one entry per realization.

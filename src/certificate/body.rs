@@ -13,8 +13,9 @@ use super::record::{DatasetDigest, FileRecord};
 use crate::bounds::confidence::Simultaneity;
 use crate::bounds::family;
 use crate::bounds::run_bounds::RunBounds;
+use crate::inputs::run_file::RunOutline;
 use crate::model::noise::{ActsOn, Amplitude, Family};
-use crate::model::{NoiseModel, NoiseRecord, Run};
+use crate::model::{NoiseModel, NoiseRecord};
 
 /// The format name of certificates.
 pub const FORMAT: &str = "quassay-certificate";
@@ -127,7 +128,7 @@ pub fn build_body(
     })
 }
 
-fn run_json(run: &Run) -> Value {
+fn run_json(run: &RunOutline) -> Value {
     let h = &run.hamiltonian;
     let factor = h.energy_unit.factor_to_angular(run.time_unit);
     let mut lattice = json!({
@@ -183,7 +184,7 @@ fn family_json(f: &Family) -> Value {
     }
 }
 
-fn noise_json(run: &Run, record: &NoiseRecord, model: &NoiseModel) -> Value {
+fn noise_json(run: &RunOutline, record: &NoiseRecord, model: &NoiseModel) -> Value {
     let factor = record.frequency_unit.factor_to_angular(run.time_unit);
     let sources: Vec<Value> = record
         .sources
@@ -255,7 +256,7 @@ fn noise_json(run: &Run, record: &NoiseRecord, model: &NoiseModel) -> Value {
     v
 }
 
-fn observables_json(run: &Run, bounds: &RunBounds) -> Value {
+fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
     let list: Vec<Value> = run
         .observables
         .iter()
@@ -302,7 +303,7 @@ fn observables_json(run: &Run, bounds: &RunBounds) -> Value {
     Value::Array(list)
 }
 
-fn fidelity_json(run: &Run, bounds: &RunBounds) -> Value {
+fn fidelity_json(run: &RunOutline, bounds: &RunBounds) -> Value {
     let f = &bounds.fidelity;
     json!({
         "statement": "for one noisy evolution from a pure initial state, F(t) = |<psi(t)|psi_g(t)>|^2 >= f_low at every recorded time, with the stated probability",

@@ -11,6 +11,7 @@ use serde_json::{json, Value};
 
 use super::hash::{sha256_file, ContentHasher, ContentKind};
 use crate::error::{Error, Result};
+use crate::inputs::run_file::{ContentSink, ObservableOutline, RunOutline};
 use crate::model::{Geometry, Run, Shots};
 
 /// One input file as the certificate records it.
@@ -153,27 +154,7 @@ impl DatasetDigest {
 /// observable (sorted by name) `values`, `shots` (if a dataset), `stderr`, `ideal`,
 /// `terms_support` (rows padded with −1 to the longest term), `terms_weight`, `terms_spectrum`.
 pub fn dataset_digests(run: &Run) -> Vec<DatasetDigest> {
-    let mut out = Vec::new();
-    out.push(DatasetDigest::floats(
-        "/times".into(),
-        vec![run.times.len()],
-        run.times.iter().copied(),
-    ));
-    if run.lattice.geometry() == Geometry::Graph {
-        let b = run.lattice.bonds();
-        out.push(DatasetDigest::ints(
-            "/lattice/bonds".into(),
-            vec![b.len(), 2],
-            b.iter().flat_map(|e| [i64::from(e[0]), i64::from(e[1])]),
-        ));
-    }
-    if let Some(norms) = &run.hamiltonian.bond_norms {
-        out.push(DatasetDigest::floats(
-            "/hamiltonian/bond_norms".into(),
-            vec![norms.len()],
-            norms.iter().copied(),
-        ));
-    }
+    let mut out = header_digests(&RunOutline::of(run));
     for o in &run.observables {
         let base = format!("/observables/{}", o.name);
         let shape = o.values.shape().to_vec();
@@ -196,36 +177,121 @@ pub fn dataset_digests(run: &Run) -> Vec<DatasetDigest> {
                 se.iter().copied(),
             ));
         }
-        if let Some(ideal) = &o.ideal {
-            out.push(DatasetDigest::floats(
-                format!("{base}/ideal"),
-                vec![ideal.len()],
-                ideal.iter().copied(),
-            ));
-        }
-        if let Some(terms) = &o.terms {
-            let width = terms.supports.iter().map(Vec::len).max().unwrap_or(0);
-            out.push(DatasetDigest::ints(
-                format!("{base}/terms_support"),
-                vec![terms.supports.len(), width],
-                terms
-                    .supports
-                    .iter()
-                    .flat_map(|s| (0..width).map(move |j| s.get(j).map_or(-1, |&x| x as i64))),
-            ));
-            out.push(DatasetDigest::floats(
-                format!("{base}/terms_weight"),
-                vec![terms.weights.len()],
-                terms.weights.iter().copied(),
-            ));
-            out.push(DatasetDigest::floats(
-                format!("{base}/terms_spectrum"),
-                vec![terms.spectra.len(), 2],
-                terms.spectra.iter().flat_map(|s| [s[0], s[1]]),
-            ));
-        }
+        out.extend(small_digests(&ObservableOutline::of(o)));
     }
     out
+}
+
+/// The first digests of [`dataset_digests`]: `/times`, `/lattice/bonds` (graphs only),
+/// `/hamiltonian/bond_norms` (if given).
+pub fn header_digests(run: &RunOutline) -> Vec<DatasetDigest> {
+    let mut out = Vec::new();
+    out.push(DatasetDigest::floats(
+        "/times".into(),
+        vec![run.times.len()],
+        run.times.iter().copied(),
+    ));
+    if run.lattice.geometry() == Geometry::Graph {
+        let b = run.lattice.bonds();
+        out.push(DatasetDigest::ints(
+            "/lattice/bonds".into(),
+            vec![b.len(), 2],
+            b.iter().flat_map(|e| [i64::from(e[0]), i64::from(e[1])]),
+        ));
+    }
+    if let Some(norms) = &run.hamiltonian.bond_norms {
+        out.push(DatasetDigest::floats(
+            "/hamiltonian/bond_norms".into(),
+            vec![norms.len()],
+            norms.iter().copied(),
+        ));
+    }
+    out
+}
+
+/// The digests of an observable's small datasets, which follow its R × T ones: `ideal`,
+/// `terms_support`, `terms_weight`, `terms_spectrum`.
+pub fn small_digests(o: &ObservableOutline) -> Vec<DatasetDigest> {
+    let base = format!("/observables/{}", o.name);
+    let mut out = Vec::new();
+    if let Some(ideal) = &o.ideal {
+        out.push(DatasetDigest::floats(
+            format!("{base}/ideal"),
+            vec![ideal.len()],
+            ideal.iter().copied(),
+        ));
+    }
+    if let Some(terms) = &o.terms {
+        let width = terms.supports.iter().map(Vec::len).max().unwrap_or(0);
+        out.push(DatasetDigest::ints(
+            format!("{base}/terms_support"),
+            vec![terms.supports.len(), width],
+            terms
+                .supports
+                .iter()
+                .flat_map(|s| (0..width).map(move |j| s.get(j).map_or(-1, |&x| x as i64))),
+        ));
+        out.push(DatasetDigest::floats(
+            format!("{base}/terms_weight"),
+            vec![terms.weights.len()],
+            terms.weights.iter().copied(),
+        ));
+        out.push(DatasetDigest::floats(
+            format!("{base}/terms_spectrum"),
+            vec![terms.spectra.len(), 2],
+            terms.spectra.iter().flat_map(|s| [s[0], s[1]]),
+        ));
+    }
+    out
+}
+
+/// The R × T digests of an observable, in the order the reader streams them: `values`,
+/// `shots` (if a dataset), `stderr` (if given).
+pub fn streamed_paths(o: &ObservableOutline) -> Vec<String> {
+    let base = format!("/observables/{}", o.name);
+    let mut out = vec![format!("{base}/values")];
+    if o.per_point_shots {
+        out.push(format!("{base}/shots"));
+    }
+    if o.has_stderr {
+        out.push(format!("{base}/stderr"));
+    }
+    out
+}
+
+/// A [`ContentSink`] that digests the streamed datasets on the calling thread.
+#[derive(Default)]
+pub struct DigestSink {
+    current: Option<(String, ContentKind, Vec<usize>, ContentHasher)>,
+    /// The digests, in stream order.
+    pub digests: Vec<DatasetDigest>,
+}
+
+impl ContentSink for DigestSink {
+    fn begin(&mut self, path: &str, kind: ContentKind, shape: &[usize]) {
+        let h = ContentHasher::new(kind, shape);
+        self.current = Some((path.to_string(), kind, shape.to_vec(), h));
+    }
+    fn floats(&mut self, values: &[f64]) {
+        if let Some((_, _, _, h)) = self.current.as_mut() {
+            h.push_f64(values);
+        }
+    }
+    fn ints(&mut self, values: &[i64]) {
+        if let Some((_, _, _, h)) = self.current.as_mut() {
+            h.push_i64(values);
+        }
+    }
+    fn end(&mut self) {
+        if let Some((path, kind, shape, h)) = self.current.take() {
+            self.digests.push(DatasetDigest {
+                path,
+                kind,
+                shape,
+                sha256: h.finish(),
+            });
+        }
+    }
 }
 
 #[cfg(test)]

@@ -6,12 +6,19 @@
 //! never written. HDF5's own error printing is silenced: every failure becomes a [`Problem`].
 //!
 //! The pieces: `access` (typed reads that tolerate the usual storage variants), `checks` (the
-//! pure rules), `layout` (root, times, lattice, Hamiltonian) and `observables`.
+//! pure rules), `layout` (root, times, lattice, Hamiltonian), `observables` and `stream`.
+//!
+//! [`open_run`] is the streaming form that `certify` uses: it reads and checks everything but
+//! the observables, then [`RunStream::read_observables`] reads them one at a time in row
+//! blocks, handing each one's sums to a callback and its content to a [`ContentSink`], so that
+//! memory does not grow with the size of the run. All three share the same code, so they find
+//! the same problems.
 
 mod access;
 mod checks;
 mod layout;
 mod observables;
+mod stream;
 
 use std::path::{Path, PathBuf};
 
@@ -21,6 +28,7 @@ use crate::error::{Error, InputKind, Problem, Result};
 use crate::model::Run;
 
 pub use checks::{range_tolerance, valid_name};
+pub use stream::{ContentSink, NoContent, ObservableOutline, ObservableRead, RunOutline};
 
 /// What `inspect` shows of a run file: whatever could be read, even from a file with problems.
 #[derive(Debug, Clone, Default, PartialEq, Serialize)]
@@ -152,25 +160,131 @@ pub fn read_run(path: &Path) -> Result<Run> {
 /// unreadable path or a folder, [`Error::Input`] (one problem at `/`) for a file that is empty
 /// or not HDF5.
 pub fn inspect_run(path: &Path) -> Result<RunInspection> {
+    let stream = open_run(path)?;
+    let mut observables = Vec::new();
+    let (outline, mut inspection) = stream.finish(true, &mut NoContent, &mut |o| {
+        if let Some(kept) = o.kept {
+            observables.push(kept);
+        }
+    });
+    let run = outline.map(|o| Run {
+        run_id: o.run_id,
+        time_unit: o.time_unit,
+        description: o.description,
+        times: o.times,
+        lattice: o.lattice,
+        hamiltonian: o.hamiltonian,
+        observables,
+    });
+    inspection.run = run.filter(|_| inspection.problems.is_empty());
+    Ok(inspection)
+}
+
+/// A run file opened for streaming: everything but the observables is read and checked.
+pub struct RunStream {
+    file: hdf5::File,
+    path: PathBuf,
+    c: access::Collector,
+    summary: RunSummary,
+    outline: Option<RunOutline>,
+    ctx: observables::Context,
+    listing: Option<(hdf5::Group, Vec<String>)>,
+}
+
+/// Opens a run file for streaming (fails like [`inspect_run`] when it is not HDF5).
+pub fn open_run(path: &Path) -> Result<RunStream> {
     let file = open(path)?;
     let mut c = access::Collector::default();
     let mut summary = RunSummary::default();
-    let run = layout::read_all(&mut c, &file, &mut summary);
-    drop(file);
-    let run = if c.problems.is_empty() { run } else { None };
-    if c.problems.is_empty() && run.is_none() {
-        c.problem(
-            "/",
-            "could not be read completely; please report this as a bug in quassay",
-        );
-    }
-    Ok(RunInspection {
-        file: path.to_path_buf(),
+    let (outline, ctx) = layout::read_header(&mut c, &file, &mut summary);
+    let listing = observables::list_observables(&mut c, &file);
+    Ok(RunStream {
+        file,
+        path: path.to_path_buf(),
+        c,
         summary,
-        problems: c.problems,
-        notes: c.notes,
-        run,
+        outline,
+        ctx,
+        listing,
     })
+}
+
+impl RunStream {
+    /// The run without its observables, when everything read so far is sound.
+    pub fn outline(&self) -> Option<&RunOutline> {
+        self.outline.as_ref().filter(|_| self.c.problems.is_empty())
+    }
+
+    /// The number of observables the file lists (all of them are read, sound or not).
+    pub fn n_observables(&self) -> usize {
+        self.listing.as_ref().map_or(0, |(_, n)| n.len())
+    }
+
+    /// Reads the observables in name order, one at a time: each sound one is handed to `visit`
+    /// (its data summed, not kept) and its R × T content to `sink`. Returns the complete
+    /// outline, or [`Error::Input`] with every problem of the file.
+    pub fn read_observables(
+        self,
+        sink: &mut dyn ContentSink,
+        mut visit: impl FnMut(ObservableRead),
+    ) -> Result<RunOutline> {
+        let (outline, inspection) = self.finish(false, sink, &mut visit);
+        match outline {
+            Some(o) if inspection.problems.is_empty() => Ok(o),
+            _ => Err(Error::Input {
+                kind: InputKind::Run,
+                file: inspection.file,
+                problems: inspection.problems,
+            }),
+        }
+    }
+
+    /// Reads the observables; the outline is `Some` only when the whole file is sound.
+    fn finish(
+        mut self,
+        keep: bool,
+        sink: &mut dyn ContentSink,
+        visit: &mut dyn FnMut(ObservableRead),
+    ) -> (Option<RunOutline>, RunInspection) {
+        let read = match &self.listing {
+            Some((g, names)) => observables::read_observables(
+                &mut self.c,
+                g,
+                names,
+                &self.ctx,
+                &mut self.summary,
+                keep,
+                sink,
+                visit,
+            ),
+            None => None,
+        };
+        drop(self.listing);
+        drop(self.file);
+        let mut c = self.c;
+        let outline = match (self.outline, read) {
+            (Some(mut o), Some((list, r))) if c.problems.is_empty() => {
+                o.observables = list;
+                o.realizations = r;
+                Some(o)
+            }
+            _ => None,
+        };
+        if c.problems.is_empty() && outline.is_none() {
+            c.problem(
+                "/",
+                "could not be read completely; please report this as a bug in quassay",
+            );
+        }
+        let inspection = RunInspection {
+            file: self.path,
+            summary: self.summary,
+            problems: c.problems,
+            notes: c.notes,
+            run: None,
+        };
+        (outline, inspection)
+    }
 }
 
 /// Opens `path` read-only as HDF5, with the failures a user can cause told apart.

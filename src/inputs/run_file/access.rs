@@ -9,7 +9,7 @@
 
 use hdf5::types::{FixedAscii, FixedUnicode, TypeDescriptor, VarLenAscii, VarLenUnicode};
 use hdf5::{Attribute, Dataset, Group, Location};
-use ndarray::ArrayD;
+use ndarray::{s, Array2, ArrayD};
 
 use crate::error::Problem;
 
@@ -317,6 +317,64 @@ pub fn open_dataset(c: &mut Collector, group: &Group, at: &str, name: &str) -> O
 
 /// Reads a float dataset (float or integer storage) of any rank, with how it was stored.
 pub fn f64_dataset(c: &mut Collector, ds: &Dataset, path: &str) -> Option<(ArrayD<f64>, Stored)> {
+    let stored = float_storage(c, ds, path)?;
+    match ds.read_dyn::<f64>() {
+        Ok(a) => Some((a, stored)),
+        Err(e) => {
+            c.problem(path, format!("cannot be read ({e}); rewrite it as float64"));
+            None
+        }
+    }
+}
+
+/// Values per row block of the streaming reads: 128 Ki values, 1 MiB as float64.
+const BLOCK_VALUES: usize = 1 << 17;
+
+/// The row blocks `[r0, r1)` in which an R × T dataset is read: about 1 MiB each, at least
+/// one row.
+pub fn row_blocks(rows: usize, cols: usize) -> impl Iterator<Item = (usize, usize)> {
+    let step = (BLOCK_VALUES / cols.max(1)).max(1);
+    (0..rows)
+        .step_by(step)
+        .map(move |r0| (r0, (r0 + step).min(rows)))
+}
+
+/// Rows `[r0, r1)` of a 2-D float dataset, as float64 (HDF5 converts the stored type).
+pub fn f64_rows(ds: &Dataset, r0: usize, r1: usize) -> hdf5::Result<Array2<f64>> {
+    ds.read_slice_2d::<f64, _>(s![r0..r1, ..])
+}
+
+/// Rows `[r0, r1)` of a 2-D integer dataset, widened to `i128`; `signed` says how it is
+/// stored (from [`int_storage`]).
+pub fn int_rows(ds: &Dataset, signed: bool, r0: usize, r1: usize) -> hdf5::Result<Array2<i128>> {
+    if signed {
+        Ok(ds.read_slice_2d::<i64, _>(s![r0..r1, ..])?.mapv(i128::from))
+    } else {
+        Ok(ds.read_slice_2d::<u64, _>(s![r0..r1, ..])?.mapv(i128::from))
+    }
+}
+
+/// Whether an integer dataset is stored signed; a problem if it does not hold integers.
+pub fn int_storage(c: &mut Collector, ds: &Dataset, path: &str) -> Option<bool> {
+    let d = descriptor_of(ds.dtype());
+    match &d {
+        Some(TypeDescriptor::Integer(_)) => Some(true),
+        Some(TypeDescriptor::Unsigned(_)) => Some(false),
+        _ => {
+            c.problem(
+                path,
+                format!(
+                    "must hold integers but holds {}; store it as int64",
+                    type_words(&d)
+                ),
+            );
+            None
+        }
+    }
+}
+
+/// How a float dataset is stored; a problem if it does not hold numbers.
+pub fn float_storage(c: &mut Collector, ds: &Dataset, path: &str) -> Option<Stored> {
     let d = descriptor_of(ds.dtype());
     let stored = match &d {
         // Significant bits by storage size: binary64, binary32, binary16 (IEEE 754).
@@ -337,13 +395,7 @@ pub fn f64_dataset(c: &mut Collector, ds: &Dataset, path: &str) -> Option<(Array
             return None;
         }
     };
-    match ds.read_dyn::<f64>() {
-        Ok(a) => Some((a, stored)),
-        Err(e) => {
-            c.problem(path, format!("cannot be read ({e}); rewrite it as float64"));
-            None
-        }
-    }
+    Some(stored)
 }
 
 /// Reads an integer dataset of any rank, widened to `i128`.

@@ -56,26 +56,117 @@ pub fn check_times(times: &[f64]) -> Vec<String> {
     out
 }
 
-/// Finds non-finite entries of an R × T array: `(count, first [r, k])`.
-pub fn non_finite_2d(a: ArrayView2<f64>) -> Option<(usize, [usize; 2])> {
-    let mut first = None;
-    let mut count = 0;
-    for ((r, k), v) in a.indexed_iter() {
-        if !v.is_finite() {
-            count += 1;
-            first.get_or_insert([r, k]);
-        }
-    }
-    first.map(|f| (count, f))
+/// Finds the non-finite entries of an R × T dataset read in row blocks: their count and the
+/// first position (row-major), as `check_finite_2d` reported them for a whole array.
+#[derive(Debug, Default)]
+pub struct FiniteScan {
+    count: usize,
+    first: Option<[usize; 2]>,
 }
 
-/// The message for the non-finite entries of an R × T dataset, if any.
-pub fn check_finite_2d(a: ArrayView2<f64>) -> Option<String> {
-    non_finite_2d(a).map(|(n, [r, k])| {
-        format!(
-            "{n} value(s) are NaN or infinite (first at [realization, time] = [{r}, {k}]); store a finite number at every point, or leave the realization out"
-        )
-    })
+impl FiniteScan {
+    /// Scans `block`, whose first row is realization `r0`.
+    pub fn push(&mut self, r0: usize, block: ArrayView2<f64>) {
+        // The common case, every value finite, needs no positions.
+        if block.iter().all(|v| v.is_finite()) {
+            return;
+        }
+        for ((r, k), v) in block.indexed_iter() {
+            if !v.is_finite() {
+                self.count += 1;
+                self.first.get_or_insert([r0 + r, k]);
+            }
+        }
+    }
+
+    /// `(count, first [r, k])`, if any value was not finite.
+    pub fn found(&self) -> Option<(usize, [usize; 2])> {
+        self.first.map(|f| (self.count, f))
+    }
+
+    /// The message for the non-finite entries, if any.
+    pub fn message(&self) -> Option<String> {
+        self.found().map(|(n, [r, k])| {
+            format!(
+                "{n} value(s) are NaN or infinite (first at [realization, time] = [{r}, {k}]); store a finite number at every point, or leave the realization out"
+            )
+        })
+    }
+}
+
+/// Finds the finite values of an R × T dataset, read in row blocks, that lie outside
+/// `[lo − tol, hi + tol]` (the 2-D form of [`check_in_range`], same message).
+#[derive(Debug)]
+pub struct RangeScan {
+    lo: f64,
+    hi: f64,
+    tol: f64,
+    count: usize,
+    first: Option<([usize; 2], f64)>,
+    worst: f64,
+}
+
+impl RangeScan {
+    pub fn new(lo: f64, hi: f64, tol: f64) -> RangeScan {
+        RangeScan {
+            lo,
+            hi,
+            tol,
+            count: 0,
+            first: None,
+            worst: 0.0,
+        }
+    }
+
+    /// Scans `block`, whose first row is realization `r0`.
+    pub fn push(&mut self, r0: usize, block: ArrayView2<f64>) {
+        let (lo, hi, tol) = (self.lo, self.hi, self.tol);
+        // The common case, every value inside, needs no positions (the test is the one below).
+        if block
+            .iter()
+            .all(|&v| (lo - v).max(v - hi) <= tol || !v.is_finite())
+        {
+            return;
+        }
+        for ((r, k), &v) in block.indexed_iter() {
+            if !v.is_finite() {
+                continue;
+            }
+            let excess = (lo - v).max(v - hi);
+            if excess > tol {
+                self.count += 1;
+                self.worst = self.worst.max(excess);
+                self.first.get_or_insert(([r0 + r, k], v));
+            }
+        }
+    }
+
+    /// The message for the values outside, if any; `what` names the items.
+    pub fn message(&self, what: &str) -> Option<String> {
+        self.first.map(|([r, k], v)| {
+            range_message(
+                self.count,
+                what,
+                (self.lo, self.hi, self.tol),
+                v,
+                &format!("[{r}, {k}]"),
+                self.worst,
+            )
+        })
+    }
+}
+
+fn range_message(
+    count: usize,
+    what: &str,
+    (lo, hi, tol): (f64, f64, f64),
+    v: f64,
+    at: &str,
+    worst: f64,
+) -> String {
+    format!(
+        "{count} {what}(s) lie outside the spectrum [{lo}, {hi}] by more than the tolerance {tol:.3e} (first {v} at {at}, largest excess {worst:.3e}); correct the values or the attributes spectrum_min/spectrum_max"
+    )
 }
 
 /// The half-width of the tolerance band around a spectrum (see the module header).
@@ -108,21 +199,7 @@ pub fn check_in_range<'a>(
             }
         }
     }
-    first.map(|(at, v)| {
-        format!(
-            "{count} {what}(s) lie outside the spectrum [{lo}, {hi}] by more than the tolerance {tol:.3e} (first {v} at {at}, largest excess {worst:.3e}); correct the values or the attributes spectrum_min/spectrum_max"
-        )
-    })
-}
-
-/// Iterates an R × T array with each entry's position as text.
-pub fn indexed_2d(a: ArrayView2<'_, f64>) -> impl Iterator<Item = (String, &f64)> {
-    a.into_iter().enumerate().map(move |(i, v)| {
-        (
-            format!("[{}, {}]", i / a.ncols().max(1), i % a.ncols().max(1)),
-            v,
-        )
-    })
+    first.map(|(at, v)| range_message(count, what, (lo, hi, tol), v, &at, worst))
 }
 
 /// Iterates a vector with each entry's position as text.
@@ -237,8 +314,17 @@ mod tests {
             [0.0, 1.0, f64::NAN],
             [f64::INFINITY, 0.0, f64::NEG_INFINITY]
         ];
-        assert_eq!(non_finite_2d(a.view()), Some((3, [0, 2])));
-        assert_eq!(non_finite_2d(array![[0.5]].view()), None);
+        let mut scan = FiniteScan::default();
+        scan.push(0, a.view());
+        assert_eq!(scan.found(), Some((3, [0, 2])));
+        // In two blocks, the second starting at row 1: the same count and first position.
+        let mut scan = FiniteScan::default();
+        scan.push(0, a.slice(ndarray::s![0..1, ..]));
+        scan.push(1, a.slice(ndarray::s![1..2, ..]));
+        assert_eq!(scan.found(), Some((3, [0, 2])));
+        let mut scan = FiniteScan::default();
+        scan.push(0, array![[0.5]].view());
+        assert_eq!(scan.found(), None);
     }
 
     #[test]
@@ -260,18 +346,20 @@ mod tests {
     #[test]
     fn values_outside_the_spectrum_are_reported_with_count_and_worst() {
         let a = array![[0.5, 1.5], [-1.0, 2.0]];
-        let m = check_in_range(indexed_2d(a.view()), -1.0, 1.0, 1e-12, "value").unwrap();
+        let mut scan = RangeScan::new(-1.0, 1.0, 1e-12);
+        scan.push(0, a.slice(ndarray::s![0..1, ..]));
+        scan.push(1, a.slice(ndarray::s![1..2, ..]));
+        let m = scan.message("value").unwrap();
         assert!(m.starts_with("2 value(s)"), "{m}");
         assert!(m.contains("first 1.5 at [0, 1]"), "{m}");
         assert!(m.contains("largest excess 1.000e0"), "{m}");
-        assert!(check_in_range(
-            indexed_2d(array![[1.0 + 1e-13]].view()),
-            -1.0,
-            1.0,
-            range_tolerance(-1.0, 1.0, 0.0),
-            "value"
-        )
-        .is_none());
+        let mut scan = RangeScan::new(-1.0, 1.0, range_tolerance(-1.0, 1.0, 0.0));
+        scan.push(0, array![[1.0 + 1e-13, f64::NAN]].view());
+        assert!(scan.message("value").is_none());
+        let v = [1.5];
+        let it = v.iter().enumerate().map(|(i, x)| (format!("index {i}"), x));
+        let m = check_in_range(it, -1.0, 1.0, 1e-12, "ideal value").unwrap();
+        assert!(m.contains("first 1.5 at index 0"), "{m}");
     }
 
     #[test]

@@ -1,7 +1,8 @@
 //! The run-level items of layout v1: root attributes, `/times`, `/lattice`, `/hamiltonian`.
 //!
 //! Each reader records its problems and fills the summary with what it could read, then
-//! returns its part of the model only if that part is sound; [`read_all`] assembles the run.
+//! returns its part of the model only if that part is sound; [`read_header`] assembles the
+//! run's outline (the observables are read one at a time afterwards).
 
 use hdf5::Group;
 use ndarray::Ix1;
@@ -12,8 +13,9 @@ use super::access::{
 };
 use super::checks;
 use super::observables;
+use super::stream::RunOutline;
 use super::{RunSummary, TimesSummary};
-use crate::model::{Boundary, FrequencyUnit, Geometry, Hamiltonian, Lattice, Run, TimeUnit};
+use crate::model::{Boundary, FrequencyUnit, Geometry, Hamiltonian, Lattice, TimeUnit};
 
 const ROOT_ATTRS: &[&str] = &[
     "format",
@@ -29,8 +31,13 @@ const LATTICE_MEMBERS: &[&str] = &["bonds"];
 const HAMILTONIAN_ATTRS: &[&str] = &["energy_unit", "bond_norm_max", "interaction_range"];
 const HAMILTONIAN_MEMBERS: &[&str] = &["bond_norms"];
 
-/// Reads the whole file; `Some` only when every part is sound.
-pub fn read_all(c: &mut Collector, file: &hdf5::File, s: &mut RunSummary) -> Option<Run> {
+/// Reads everything but the observables: the outline (with no observables yet) when every
+/// part is sound, and what the observables are checked against.
+pub fn read_header(
+    c: &mut Collector,
+    file: &hdf5::File,
+    s: &mut RunSummary,
+) -> (Option<RunOutline>, observables::Context) {
     note_unknown(c, file, "/", ROOT_ATTRS, ROOT_MEMBERS);
     let root = read_root(c, file, s);
     let times = read_times(c, file, s);
@@ -41,16 +48,19 @@ pub fn read_all(c: &mut Collector, file: &hdf5::File, s: &mut RunSummary) -> Opt
         n_sites: root.n_sites,
         n_times: times.as_ref().map(Vec::len),
     };
-    let observables = observables::read_observables(c, file, &ctx, s);
-    Some(Run {
-        run_id: root.run_id?,
-        time_unit: root.time_unit?,
-        description: root.description,
-        times: times?,
-        lattice: lattice?,
-        hamiltonian: hamiltonian?,
-        observables: observables?,
-    })
+    let outline = (|| {
+        Some(RunOutline {
+            run_id: root.run_id?,
+            time_unit: root.time_unit?,
+            description: root.description,
+            times: times?,
+            lattice: lattice?,
+            hamiltonian: hamiltonian?,
+            realizations: 0,
+            observables: Vec::new(),
+        })
+    })();
+    (outline, ctx)
 }
 
 /// Records a note for every attribute and member of `group` that layout v1 does not define.

@@ -1,17 +1,25 @@
 //! The `/observables/<name>` groups of layout v1: values, shots, errors, supports, spectra and
 //! the optional term structure, checked against the run (`n_sites`, T) and against each other
 //! (every observable has the same realizations R).
+//!
+//! The R × T datasets are read in row blocks (about 1 MiB each): every block is checked,
+//! summed per time (what the bounds need) and passed to a [`ContentSink`], then dropped unless
+//! the caller keeps the whole observable. So memory does not grow with R × T × K.
 
-use hdf5::Group;
-use ndarray::{Array2, ArrayD, Ix1, Ix2};
+use hdf5::{Dataset, Group};
+use ndarray::{s, Array2, Ix1, Ix2};
 
 use super::access::{
-    attr_problem, f64_attr, f64_dataset, int_dataset, int_values_attr, int_vec_attr, open_attr,
-    open_dataset, string_attr, Collector,
+    attr_problem, f64_attr, f64_dataset, f64_rows, float_storage, int_dataset, int_rows,
+    int_storage, int_values_attr, int_vec_attr, open_attr, open_dataset, row_blocks, string_attr,
+    Collector,
 };
 use super::checks;
 use super::layout::{note_unknown, open_group};
+use super::stream::{ContentSink, ObservableOutline, ObservableRead};
 use super::{ObservableSummary, RunSummary, ShotsSummary};
+use crate::bounds::run_bounds::{ObservableSums, ShotSums};
+use crate::certificate::hash::ContentKind;
 use crate::model::{Observable, Shots, Terms};
 
 const OBS_ATTRS: &[&str] = &[
@@ -37,13 +45,8 @@ pub struct Context {
     pub n_times: Option<usize>,
 }
 
-/// Reads every observable, sorted by name; `Some` only when all are sound.
-pub fn read_observables(
-    c: &mut Collector,
-    file: &hdf5::File,
-    ctx: &Context,
-    s: &mut RunSummary,
-) -> Option<Vec<Observable>> {
+/// Opens `/observables` and lists its members, sorted by name.
+pub fn list_observables(c: &mut Collector, file: &hdf5::File) -> Option<(Group, Vec<String>)> {
     let g = open_group(
         c,
         file,
@@ -70,21 +73,37 @@ pub fn read_observables(
         );
         return None;
     }
+    Some((g, names))
+}
+
+/// Reads the observables `names` of `g` one at a time, handing each sound one to `visit`;
+/// returns their outlines (and R) when all are sound. `keep` keeps every observable whole.
+#[allow(clippy::too_many_arguments)]
+pub fn read_observables(
+    c: &mut Collector,
+    g: &Group,
+    names: &[String],
+    ctx: &Context,
+    s: &mut RunSummary,
+    keep: bool,
+    sink: &mut dyn ContentSink,
+    visit: &mut dyn FnMut(ObservableRead),
+) -> Option<(Vec<ObservableOutline>, usize)> {
     let mut out = Some(Vec::with_capacity(names.len()));
     let mut reference: Option<(String, usize)> = None;
     for name in names {
         let at = format!("/observables/{name}");
         let mut ok = true;
-        if !checks::valid_name(&name) {
+        if !checks::valid_name(name) {
             c.problem(&at, format!("the name \"{name}\" uses characters other than ASCII letters, digits, `_`, `-` and `.`; rename the group"));
             ok = false;
         }
-        let Ok(group) = g.group(&name) else {
+        let Ok(group) = g.group(name) else {
             c.problem(&at, "is not a group; every member of /observables must be a group with values, shots and spectrum_min/spectrum_max");
             out = None;
             continue;
         };
-        let (obs, summary) = read_one(c, &group, &at, &name, ctx);
+        let (obs, summary) = read_one(c, &group, &at, name, ctx, keep, sink);
         if let Some([r, _]) = summary.shape {
             match &reference {
                 None => {
@@ -100,11 +119,14 @@ pub fn read_observables(
         }
         s.observables.push(summary);
         match (obs, ok, out.as_mut()) {
-            (Some(o), true, Some(v)) => v.push(o),
+            (Some(o), true, Some(v)) => {
+                v.push(o.outline.clone());
+                visit(o);
+            }
             _ => out = None,
         }
     }
-    out
+    Some((out?, reference.map_or(0, |(_, r)| r)))
 }
 
 /// `/observables` itself has no attributes in layout v1; note any.
@@ -120,13 +142,103 @@ fn note_attrs_only(c: &mut Collector, g: &Group) -> Option<()> {
     Some(())
 }
 
+/// A scanned R × T float dataset: per-time sums of `f(value)` and, if kept, the array.
+struct Scanned {
+    sums: Vec<f64>,
+    kept: Option<Array2<f64>>,
+}
+
+/// Reads an R × T float dataset of shape `(rows, cols)` in row blocks: each block is checked
+/// (`check(r0, block)`), summed per time through `f` in realization order, passed to `sink`
+/// and kept if `keep`. `None` if a block cannot be read (a problem is recorded).
+#[allow(clippy::too_many_arguments)]
+fn scan_floats(
+    c: &mut Collector,
+    ds: &Dataset,
+    path: &str,
+    (rows, cols): (usize, usize),
+    keep: bool,
+    sink: &mut dyn ContentSink,
+    f: fn(f64) -> f64,
+    check: &mut dyn FnMut(usize, ndarray::ArrayView2<f64>),
+) -> Option<Scanned> {
+    let mut sums = vec![0.0; cols];
+    let mut kept = keep.then(|| Array2::zeros((rows, cols)));
+    sink.begin(path, ContentKind::F64, &[rows, cols]);
+    for (r0, r1) in row_blocks(rows, cols) {
+        let block = match f64_rows(ds, r0, r1) {
+            Ok(b) => b,
+            Err(e) => {
+                sink.end();
+                c.problem(path, format!("cannot be read ({e}); rewrite it as float64"));
+                return None;
+            }
+        };
+        check(r0, block.view());
+        for row in block.rows() {
+            for (s, &x) in sums.iter_mut().zip(row.iter()) {
+                *s += f(x);
+            }
+        }
+        if let Some(k) = kept.as_mut() {
+            k.slice_mut(s![r0..r1, ..]).assign(&block);
+        }
+        if block.is_standard_layout() {
+            sink.floats_owned(block.into_raw_vec_and_offset().0);
+        } else {
+            sink.floats(&block.iter().copied().collect::<Vec<_>>());
+        }
+    }
+    sink.end();
+    Some(Scanned { sums, kept })
+}
+
+/// Checks the shape of an R × T dataset: 2-D, T columns (against /times), `rows` rows.
+fn check_2d(
+    c: &mut Collector,
+    shape: &[usize],
+    path: &str,
+    n_times: Option<usize>,
+    rows: Option<usize>,
+) -> Option<(usize, usize)> {
+    if shape.len() != 2 {
+        c.problem(
+            path,
+            format!("has shape {shape:?}; store a 2-D dataset of realizations × times (R × T)"),
+        );
+        return None;
+    }
+    if let Some(t) = n_times {
+        if shape[1] != t {
+            c.problem(path, format!("has shape {shape:?} but /times holds {t} times; store realizations × times (R × {t}), one column per time"));
+            return None;
+        }
+    }
+    if let Some(r) = rows {
+        if shape[0] != r {
+            c.problem(path, format!("has shape {shape:?} but values has {r} realizations; give it the shape of values"));
+            return None;
+        }
+    }
+    Some((shape[0], shape[1]))
+}
+
+/// The values and sums of one observable's R × T data.
+struct Data {
+    values: Scanned,
+    shots: (Shots, Option<Vec<f64>>),
+    stderr: Option<Scanned>,
+}
+
 fn read_one(
     c: &mut Collector,
     g: &Group,
     at: &str,
     name: &str,
     ctx: &Context,
-) -> (Option<Observable>, ObservableSummary) {
+    keep: bool,
+    sink: &mut dyn ContentSink,
+) -> (Option<ObservableRead>, ObservableSummary) {
     note_unknown(c, g, at, OBS_ATTRS, OBS_MEMBERS);
     let mut s = ObservableSummary {
         name: name.to_string(),
@@ -158,6 +270,7 @@ fn read_one(
 
     // Values.
     let values_path = format!("{at}/values");
+    let mut dims = None;
     let values = match open_dataset(c, g, at, "values") {
         None => {
             if !g.link_exists("values") {
@@ -165,47 +278,85 @@ fn read_one(
             }
             None
         }
-        Some(ds) => f64_dataset(c, &ds, &values_path).and_then(|(a, stored)| {
+        Some(ds) => float_storage(c, &ds, &values_path).and_then(|stored| {
             s.stored_as = Some(stored.describe().to_string());
-            let v = two_d(c, a, &values_path, ctx.n_times, None)?;
-            s.shape = Some([v.nrows(), v.ncols()]);
-            if v.nrows() == 0 {
+            let (r, t) = check_2d(c, &ds.shape(), &values_path, ctx.n_times, None)?;
+            s.shape = Some([r, t]);
+            if r == 0 {
                 c.problem(
                     &values_path,
                     "has no realizations (0 rows); store at least one",
                 );
                 return None;
             }
-            if let Some(m) = checks::check_finite_2d(v.view()) {
+            let mut finite = checks::FiniteScan::default();
+            let mut range = spectrum.map(|(lo, hi)| {
+                checks::RangeScan::new(
+                    lo,
+                    hi,
+                    checks::range_tolerance(lo, hi, stored.relative_rounding()),
+                )
+            });
+            let scanned = scan_floats(
+                c,
+                &ds,
+                &values_path,
+                (r, t),
+                keep,
+                sink,
+                |x| x,
+                &mut |r0, b| {
+                    finite.push(r0, b);
+                    if let Some(range) = range.as_mut() {
+                        range.push(r0, b);
+                    }
+                },
+            )?;
+            if let Some(m) = finite.message() {
                 c.problem(&values_path, m);
             }
-            if let Some((lo, hi)) = spectrum {
-                let tol = checks::range_tolerance(lo, hi, stored.relative_rounding());
-                if let Some(m) =
-                    checks::check_in_range(checks::indexed_2d(v.view()), lo, hi, tol, "value")
-                {
-                    c.problem(&values_path, m);
-                }
+            if let Some(m) = range.and_then(|r| r.message("value")) {
+                c.problem(&values_path, m);
             }
-            Some(v)
+            dims = Some((r, t));
+            Some(scanned)
         }),
     };
-    let dims = values.as_ref().map(|v| v.dim());
 
-    let shots = read_shots(c, g, at, dims, ctx.n_times, &mut s);
+    let shots = read_shots(c, g, at, dims, ctx.n_times, keep, sink, &mut s);
 
     // Standard errors.
     let stderr_path = format!("{at}/stderr");
     let stderr = open_dataset(c, g, at, "stderr").and_then(|ds| {
         s.has_stderr = true;
-        let (a, _) = f64_dataset(c, &ds, &stderr_path)?;
-        let v = two_d(c, a, &stderr_path, ctx.n_times, dims.map(|d| d.0))?;
-        if let Some(m) = checks::check_finite_2d(v.view()) {
+        float_storage(c, &ds, &stderr_path)?;
+        let shape = check_2d(c, &ds.shape(), &stderr_path, ctx.n_times, dims.map(|d| d.0))?;
+        let mut finite = checks::FiniteScan::default();
+        let mut negative: Option<([usize; 2], f64)> = None;
+        let scanned = scan_floats(
+            c,
+            &ds,
+            &stderr_path,
+            shape,
+            keep,
+            sink,
+            |x| x * x,
+            &mut |r0, b| {
+                finite.push(r0, b);
+                if negative.is_none() {
+                    negative = b
+                        .indexed_iter()
+                        .find(|(_, x)| **x < 0.0)
+                        .map(|((r, k), &x)| ([r0 + r, k], x));
+                }
+            },
+        )?;
+        if let Some(m) = finite.message() {
             c.problem(&stderr_path, m);
-        } else if let Some(((r, k), x)) = v.indexed_iter().find(|(_, x)| **x < 0.0) {
+        } else if let Some(([r, k], x)) = negative {
             c.problem(&stderr_path, format!("standard error {x} at [realization, time] = [{r}, {k}] is negative; standard errors are ≥ 0"));
         }
-        Some(v)
+        Some(scanned)
     });
 
     // Ideal prediction.
@@ -278,60 +429,70 @@ fn read_one(
     else {
         return (None, s);
     };
-    let obs = Observable {
-        name: name.to_string(),
+    let data = Data {
         values,
         shots,
         stderr,
-        ideal,
+    };
+    let outline = ObservableOutline {
+        name: name.to_string(),
         support,
         spectrum_min: lo,
         spectrum_max: hi,
         description,
         terms,
+        ideal,
+        per_point_shots: matches!(data.shots.0, Shots::PerPoint(_)),
+        has_stderr: data.stderr.is_some(),
     };
-    (Some(obs), s)
+    let realizations = dims.map_or(0, |d| d.0);
+    let shot_sums = match (&data.stderr, &data.shots) {
+        (Some(e), _) => ShotSums::SquaredErrors(e.sums.clone()),
+        (None, (Shots::Uniform(n), _)) => ShotSums::Uniform(*n),
+        (None, (_, inv)) => ShotSums::InverseCounts(inv.clone().unwrap_or_default()),
+    };
+    let sums = ObservableSums {
+        realizations,
+        value_sums: data.values.sums,
+        shots: shot_sums,
+    };
+    let kept = match (data.values.kept, data.shots.0) {
+        (Some(values), shots) => Some(Observable {
+            name: outline.name.clone(),
+            values,
+            shots,
+            stderr: data.stderr.and_then(|e| e.kept),
+            ideal: outline.ideal.clone(),
+            support: outline.support.clone(),
+            spectrum_min: lo,
+            spectrum_max: hi,
+            description: outline.description.clone(),
+            terms: outline.terms.clone(),
+        }),
+        _ => None,
+    };
+    (
+        Some(ObservableRead {
+            outline,
+            sums,
+            kept,
+        }),
+        s,
+    )
 }
 
-/// Converts a read dataset to R × T, checking T against /times and R against `rows`.
-fn two_d(
-    c: &mut Collector,
-    a: ArrayD<f64>,
-    path: &str,
-    n_times: Option<usize>,
-    rows: Option<usize>,
-) -> Option<Array2<f64>> {
-    let shape = a.shape().to_vec();
-    let Ok(v) = a.into_dimensionality::<Ix2>() else {
-        c.problem(
-            path,
-            format!("has shape {shape:?}; store a 2-D dataset of realizations × times (R × T)"),
-        );
-        return None;
-    };
-    if let Some(t) = n_times {
-        if v.ncols() != t {
-            c.problem(path, format!("has shape {shape:?} but /times holds {t} times; store realizations × times (R × {t}), one column per time"));
-            return None;
-        }
-    }
-    if let Some(r) = rows {
-        if v.nrows() != r {
-            c.problem(path, format!("has shape {shape:?} but values has {r} realizations; give it the shape of values"));
-            return None;
-        }
-    }
-    Some(v)
-}
-
+/// Shots of one observable and, for a dataset, `Σ_r 1/S[r, k]` per time (realization order).
+#[allow(clippy::too_many_arguments)]
 fn read_shots(
     c: &mut Collector,
     g: &Group,
     at: &str,
     dims: Option<(usize, usize)>,
     n_times: Option<usize>,
+    keep: bool,
+    sink: &mut dyn ContentSink,
     s: &mut ObservableSummary,
-) -> Option<Shots> {
+) -> Option<(Shots, Option<Vec<f64>>)> {
     let path = format!("{at}/shots");
     let attr = open_attr(g, "shots");
     let has_dataset = g.link_exists("shots");
@@ -376,42 +537,85 @@ fn read_shots(
                 );
                 return None;
             }
-            Some(Shots::Uniform(n as u64))
+            Some((Shots::Uniform(n as u64), None))
         }
         (None, true) => {
             let ds = open_dataset(c, g, at, "shots")?;
-            let a = int_dataset(c, &ds, &path)?;
-            let shape = a.shape().to_vec();
-            let Ok(a) = a.into_dimensionality::<Ix2>() else {
+            let signed = int_storage(c, &ds, &path)?;
+            let shape = ds.shape();
+            if shape.len() != 2 {
                 c.problem(
                     &path,
                     format!("has shape {shape:?}; store shots as realizations × times like values"),
                 );
                 return None;
-            };
-            let lo = a.iter().copied().min().unwrap_or(0);
-            let hi = a.iter().copied().max().unwrap_or(0);
+            }
+            let (rows, cols) = (shape[0], shape[1]);
+            let mut lo: Option<i128> = None;
+            let mut hi: Option<i128> = None;
+            let mut low_count = 0usize;
+            let mut first_low: Option<(i128, usize, usize)> = None;
+            let mut inv = vec![0.0; cols];
+            let mut kept = keep.then(|| Array2::<u64>::zeros((rows, cols)));
+            let mut encoded: Vec<i64> = Vec::new();
+            sink.begin(&path, ContentKind::I64, &[rows, cols]);
+            for (r0, r1) in row_blocks(rows, cols) {
+                let block = match int_rows(&ds, signed, r0, r1) {
+                    Ok(b) => b,
+                    Err(e) => {
+                        sink.end();
+                        c.problem(&path, format!("cannot be read ({e}); rewrite it as int64"));
+                        return None;
+                    }
+                };
+                for ((r, k), &n) in block.indexed_iter() {
+                    lo = Some(lo.map_or(n, |x| x.min(n)));
+                    hi = Some(hi.map_or(n, |x| x.max(n)));
+                    if n < 1 || n > i128::from(u64::MAX) {
+                        if n < 1 {
+                            low_count += 1;
+                        }
+                        first_low.get_or_insert((n, r0 + r, k));
+                    }
+                }
+                for row in block.rows() {
+                    for (s, &n) in inv.iter_mut().zip(row.iter()) {
+                        *s += 1.0 / (n.clamp(0, i128::from(u64::MAX)) as u64) as f64;
+                    }
+                }
+                encoded.clear();
+                encoded.extend(block.iter().map(|&n| {
+                    i64::try_from(n.clamp(0, i128::from(u64::MAX)) as u64).unwrap_or(i64::MAX)
+                }));
+                sink.ints(&encoded);
+                if let Some(k) = kept.as_mut() {
+                    k.slice_mut(s![r0..r1, ..])
+                        .assign(&block.mapv(|n| n.clamp(0, i128::from(u64::MAX)) as u64));
+                }
+            }
+            sink.end();
             s.shots = Some(ShotsSummary {
                 per_point: true,
-                min: lo.clamp(i64::MIN.into(), i64::MAX.into()) as i64,
-                max: hi.clamp(i64::MIN.into(), i64::MAX.into()) as i64,
+                min: lo.unwrap_or(0).clamp(i64::MIN.into(), i64::MAX.into()) as i64,
+                max: hi.unwrap_or(0).clamp(i64::MIN.into(), i64::MAX.into()) as i64,
             });
-            let expected = dims.or(n_times.map(|t| (a.nrows(), t)));
+            let expected = dims.or(n_times.map(|t| (rows, t)));
             if let Some((r, t)) = expected {
-                if a.dim() != (r, t) {
+                if (rows, cols) != (r, t) {
                     c.problem(&path, format!("has shape {shape:?} but values is [{r}, {t}]; give shots the shape of values"));
                     return None;
                 }
             }
-            if let Some(((r, k), n)) = a
-                .indexed_iter()
-                .find(|(_, &n)| n < 1 || n > i128::from(u64::MAX))
-            {
-                let count = a.iter().filter(|&&n| n < 1).count();
-                c.problem(&path, format!("{count} shot count(s) are below 1 (first {n} at [realization, time] = [{r}, {k}]); every estimate rests on at least 1 shot"));
+            if let Some((n, r, k)) = first_low {
+                c.problem(&path, format!("{low_count} shot count(s) are below 1 (first {n} at [realization, time] = [{r}, {k}]); every estimate rests on at least 1 shot"));
                 return None;
             }
-            Some(Shots::PerPoint(a.mapv(|n| n as u64)))
+            let shots = match kept {
+                Some(a) => Shots::PerPoint(a),
+                // Not kept: an empty array marks per-point shots; the sums carry the data.
+                None => Shots::PerPoint(Array2::zeros((0, cols))),
+            };
+            Some((shots, Some(inv)))
         }
     }
 }
