@@ -5,6 +5,8 @@
 //!   sensitivities so that the light-cone version (§5) can reuse them;
 //! * [`confidence`]: splitting the user's confidence into the noise and shot parts, Bonferroni;
 //! * [`fidelity`]: the fidelity lower bound (§4);
+//! * [`light_cone`]: Lieb–Robinson walk sums and exposure times `T_i(t)` (§5);
+//! * [`local`]: the light-cone versions of the §3 terms for one observable over all times (§5);
 //! * [`quantiles`]: standard-normal quantiles;
 //! * [`special`]: the error function and the normal tail, accurate to a few ulps.
 
@@ -12,6 +14,8 @@ pub mod confidence;
 pub mod family;
 pub mod fidelity;
 pub mod global;
+pub mod light_cone;
+pub mod local;
 pub mod quantiles;
 pub mod run_bounds;
 pub mod special;
