@@ -2,6 +2,7 @@
 
 mod util;
 
+mod bounds_exact;
 mod certify;
 mod noise_record;
 mod run_file;

@@ -8,8 +8,10 @@
 //! * [`hamiltonian`]: sums of Pauli strings, compiled into a diagonal plus grouped flips;
 //! * [`propagate`]: Chebyshev propagation with a rigorous truncation bound;
 //! * [`sample`]: random streams, noise draws and shot sampling;
-//! * [`run`]: the whole pipeline from a scenario to the simulated data.
+//! * [`run`]: the whole pipeline from a scenario to the simulated data;
+//! * [`fidelity`]: the ideal trajectory kept in memory, compared with one noisy evolution.
 
+pub mod fidelity;
 pub mod hamiltonian;
 pub mod pauli;
 pub mod propagate;
