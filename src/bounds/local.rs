@@ -234,20 +234,18 @@ fn bias(s_o: f64, c: &Compact, sens: &[f64], class_of: &[usize], ln_phi: &[f64])
             0.0
         }
     };
-    let mut total = 0.0;
-    for i in 0..c.sources.len() {
-        total += remainder_of(i);
+    // Remainders of the sources after each prefix, summed from the far end (non-negative
+    // terms, no cancellation): suffix[i] = Σ_{j ≥ i} δ_j σ_j e_j.
+    let n = c.sources.len();
+    let mut suffix = vec![0.0f64; n + 1];
+    for i in (0..n).rev() {
+        suffix[i] = suffix[i + 1] + remainder_of(i);
     }
-    let mut best = (total, BiasSet::Empty);
+    let mut best = (suffix[0], BiasSet::Empty);
     let mut ln_sum = 0.0;
-    let mut removed = 0.0;
     for i in 0..c.n_region {
         ln_sum += ln_phi[class_of[i]];
-        removed += remainder_of(i);
-        let rest = (total - removed).max(0.0);
-        // Cancellation in `total − removed` is bounded by n·ε·total; adding that keeps it above.
-        let rest = rest + 4.0 * f64::EPSILON * (c.sources.len() as f64) * total;
-        let v = 0.5 * s_o * ln_sum.exp_m1() + rest;
+        let v = 0.5 * s_o * ln_sum.exp_m1() + suffix[i + 1];
         if v < best.0 {
             best = (v, BiasSet::Nearest(i + 1));
         }
@@ -315,4 +313,154 @@ pub fn combine(global: &PointBounds, local: Option<&LocalTerms>) -> (PointBounds
     p.e_avg = l.e_avg;
     p.half_width = l.e_avg + global.e_shot;
     (p, Statement::LightCone)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::lattice::{Boundary, Geometry, Lattice};
+    use crate::model::noise::Family;
+
+    /// One uniform source per site (δ_site) and one per bond (δ_bond).
+    fn instances(l: &Lattice, d_site: f64, d_bond: f64) -> Vec<Instance> {
+        let mut v: Vec<Instance> = (0..l.n_sites())
+            .map(|s| Instance {
+                source: 0,
+                support: vec![s],
+                bond: None,
+                delta: d_site,
+                family: Family::Uniform,
+                mean_offset: 0.1,
+                mean_offset_uncertainty: 0.0,
+            })
+            .collect();
+        for (e, &[a, b]) in l.bonds().iter().enumerate() {
+            v.push(Instance {
+                source: 1,
+                support: vec![a.min(b) as usize, a.max(b) as usize],
+                bond: Some(e),
+                delta: d_bond,
+                family: Family::TwoPoint,
+                mean_offset: 0.0,
+                mean_offset_uncertainty: 0.0,
+            });
+        }
+        v
+    }
+
+    fn terms(l: &Lattice, site: usize, times: &[f64], d: f64) -> Vec<LocalTerms> {
+        let inst = instances(l, d, d);
+        let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
+        let graph = WalkGraph::new(l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
+        local_bounds(&LocalInputs {
+            graph: &graph,
+            support: &[site],
+            s_o: 2.0,
+            instances: &inst,
+            sources: &sources,
+            times,
+            redrawn: Redrawn::EveryRealization,
+            realizations: 10,
+            p: 1e-3,
+            p_single: 1e-3,
+        })
+        .unwrap()
+    }
+
+    fn rel(a: f64, b: f64) -> f64 {
+        ((a - b) / b).abs()
+    }
+
+    /// A site in the middle of chains of 1001 and 2001 sites (and square lattices of 101² and
+    /// 201²): before the light cone (the computed region) reaches the boundary the local
+    /// bounds do not depend on the system size.
+    #[test]
+    fn local_bounds_do_not_depend_on_the_system_size() {
+        let cases = [
+            (
+                Geometry::Chain,
+                vec![1001],
+                vec![2001],
+                vec![0.5, 1.0, 2.0, 3.0],
+            ),
+            (
+                Geometry::Square,
+                vec![101, 101],
+                vec![201, 201],
+                vec![0.1, 0.25, 0.5],
+            ),
+        ];
+        for (g, small, big, times) in cases {
+            let ls = Lattice::regular(g, &small, Boundary::Open).unwrap();
+            let lb = Lattice::regular(g, &big, Boundary::Open).unwrap();
+            let centre = |shape: &[usize]| shape.iter().fold(0, |acc, &n| acc * n + n / 2);
+            let a = terms(&ls, centre(&small), &times, 0.05);
+            let b = terms(&lb, centre(&big), &times, 0.05);
+            for ((x, y), &t) in a.iter().zip(&b).zip(&times) {
+                for (u, v) in [
+                    (x.e_wc, y.e_wc),
+                    (x.e_sys, y.e_sys),
+                    (x.e_bias, y.e_bias),
+                    (x.fluctuation, y.fluctuation),
+                    (x.fluctuation_one, y.fluctuation_one),
+                    (x.v_noise, y.v_noise),
+                ] {
+                    assert!(rel(u, v) < 1e-12, "{g:?} t={t}: {u} vs {v} ({x:?})");
+                }
+                // And the global worst case does grow with the size: locality matters here.
+                let global_wc =
+                    2.0 * t * (0.055 * ls.n_sites() as f64 + 0.05 * ls.n_bonds() as f64);
+                assert!(x.e_wc < 0.1 * global_wc, "{} vs global {global_wc}", x.e_wc);
+            }
+        }
+    }
+
+    /// Least-squares slope of log y against log x.
+    fn slope(xs: &[f64], ys: &[f64]) -> f64 {
+        let n = xs.len() as f64;
+        let lx: Vec<f64> = xs.iter().map(|x| x.ln()).collect();
+        let ly: Vec<f64> = ys.iter().map(|y| y.ln()).collect();
+        let mx = lx.iter().sum::<f64>() / n;
+        let my = ly.iter().sum::<f64>() / n;
+        let (mut sxy, mut sxx) = (0.0, 0.0);
+        for (x, y) in lx.iter().zip(&ly) {
+            sxy += (x - mx) * (y - my);
+            sxx += (x - mx) * (x - mx);
+        }
+        sxy / sxx
+    }
+
+    /// Inside the system the fluctuation term grows like t^(d/2+1) and the worst case like
+    /// t^(d+1) (bounds.md §5); fitted over a window where the light cone is far from the edge.
+    #[test]
+    fn local_terms_scale_with_the_dimension() {
+        let cases = [
+            (Geometry::Chain, vec![4001], 2000, 1.0, (10.0f64, 20.0f64)),
+            (
+                Geometry::Square,
+                vec![451, 451],
+                225 * 451 + 225,
+                2.0,
+                (2.0, 4.0),
+            ),
+        ];
+        for (g, shape, centre, d, (t0, t1)) in cases {
+            let l = Lattice::regular(g, &shape, Boundary::Open).unwrap();
+            let times: Vec<f64> = (0..6)
+                .map(|k| t0 * (t1 / t0).powf(k as f64 / 5.0))
+                .collect();
+            let out = terms(&l, centre, &times, 1e-4);
+            let fl: Vec<f64> = out.iter().map(|x| x.fluctuation).collect();
+            let wc: Vec<f64> = out.iter().map(|x| x.e_wc).collect();
+            let (sf, sw) = (slope(&times, &fl), slope(&times, &wc));
+            assert!(
+                (sf - (d / 2.0 + 1.0)).abs() < 0.15,
+                "{g:?}: fluctuation slope {sf}"
+            );
+            assert!(
+                (sw - (d + 1.0)).abs() < 0.15,
+                "{g:?}: worst-case slope {sw}"
+            );
+        }
+    }
 }
