@@ -742,9 +742,18 @@ fn check_case(case: &Case) -> Measured {
     m
 }
 
+/// A ratio, or "n/a" when there was no finite bound (an unbounded family has E_wc = ∞).
+fn ratio(x: f64) -> String {
+    if x.is_nan() {
+        "n/a (unbounded)".into()
+    } else {
+        format!("{x:.3}")
+    }
+}
+
 fn report(case: &Case, n: usize, m: &Measured) {
     let mut text = format!("== {} ({n} draws)\n", case.name);
-    text += &format!("   max |err|/E_wc = {:.3}\n", m.wc_ratio);
+    text += &format!("   max |err|/E_wc = {}\n", ratio(m.wc_ratio));
     for (p, r, c, a) in &m.e_one {
         text += &format!(
             "   E_1   p={p:<4}: max |err|/E_1 = {r:.3}, max exceedances {c} (allowance < {a})\n"
@@ -764,11 +773,41 @@ fn report(case: &Case, n: usize, m: &Measured) {
         );
     }
     text += &format!(
-        "   max (1-F)/(1-F_wc) = {:.3}; min F_low(0.05) at the last time = {:.4}\n",
-        m.fidelity_wc_ratio, m.f_low_last
+        "   max (1-F)/(1-F_wc) = {}; min F_low(0.05) at the last time = {:.4}\n",
+        ratio(m.fidelity_wc_ratio),
+        m.f_low_last
     );
     text += &format!("   max s^2/V_noise = {:.3}\n", m.variance_ratio);
     eprint!("{text}");
+}
+
+/// The cases cover every fluctuation route of bounds.md §3 and §4 (the route of `E_1` and of
+/// the fidelity bound at the last time, p = 0.05).
+#[test]
+fn the_cases_cover_every_fluctuation_route() {
+    use quassay::bounds::global::FluctuationRoute as R;
+    let expect = [
+        (case_chain6_uniform_two_point(), R::BoundedDifferences),
+        (case_square2x3_normal_truncated(), R::Gaussian),
+        (case_chain8_bounded_once(), R::BoundedDifferences),
+        (case_square2x4_every_shot(), R::Gaussian),
+        (case_chain7_mixed(), R::Mixed),
+        (case_chain6_one_site_tight(), R::Gaussian),
+    ];
+    for (case, route) in expect {
+        let s = scenario_from_value(&case.scenario).unwrap();
+        let model = s.noise.expand(&s.lattice, s.time_unit).unwrap();
+        let sources = sources_of(&model);
+        let t = *s.times.last().unwrap();
+        let b = point(&sources, 2.0, t, model.redrawn, &[s.shots], 0.05);
+        assert_eq!(b.route_one, Some(route), "{}", case.name);
+        assert_eq!(
+            fidelity_bound(&sources, t, 0.05).route,
+            Some(route),
+            "{}",
+            case.name
+        );
+    }
 }
 
 #[test]
