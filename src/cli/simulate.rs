@@ -8,13 +8,13 @@ use std::fmt::Write as _;
 
 use super::args::SimulateArgs;
 use super::{print_stdout, Outcome};
-use crate::error::{Error, Result};
+use crate::error::{Error, InputKind, Result};
 use crate::inputs::scenario::{read_scenario, Scenario};
 use crate::outputs::atomic::write_files;
 use crate::outputs::noise_record::to_json_string;
 use crate::outputs::run_file::{write_run, WriteOptions};
 use crate::outputs::truth_file::{write_truth, TruthContext};
-use crate::simulate::run::simulate;
+use crate::simulate::run::try_simulate;
 
 /// The files written, in this order.
 pub const OUTPUT_FILES: [&str; 3] = ["run.h5", "noise.json", "truth.h5"];
@@ -23,7 +23,11 @@ pub const OUTPUT_FILES: [&str; 3] = ["run.h5", "noise.json", "truth.h5"];
 pub fn run(args: &SimulateArgs) -> Result<Outcome> {
     let scenario = read_scenario(&args.scenario)?;
     let seed = args.seed.unwrap_or(scenario.seed);
-    let sim = simulate(&scenario, seed);
+    let sim = try_simulate(&scenario, seed).map_err(|problem| Error::Input {
+        kind: InputKind::Scenario,
+        file: args.scenario.clone(),
+        problems: vec![problem],
+    })?;
     let noise_json = to_json_string(&scenario.noise);
     let sources_json = true_sources_json(&scenario)?;
     let written = write_files(&args.output, &OUTPUT_FILES, args.force, |tmp| {
@@ -63,6 +67,14 @@ pub fn run(args: &SimulateArgs) -> Result<Outcome> {
         "{} evolutions, {} products H·ψ, truncation bound ≤ {:.1e}, norm drift ≤ {:.1e}, {:.2} s",
         st.evolutions, st.products, st.max_truncation_bound, st.max_norm_drift, st.seconds
     );
+    if let Some(p) = scenario.preparation_error {
+        let _ = writeln!(
+            out,
+            "preparation error: every site flipped with probability {} per shot; {} distinct \
+             flip patterns evolved",
+            p.flip_probability, st.flip_patterns
+        );
+    }
     for path in &written {
         let size = std::fs::metadata(path).map(|m| m.len()).unwrap_or(0);
         let _ = writeln!(out, "wrote {} ({size} bytes)", path.display());

@@ -33,6 +33,9 @@ pub const MAX_VALUES: usize = 10_000_000;
 pub const MAX_SHOT_EVOLUTIONS: u64 = 1_000_000;
 /// Largest number of shots per estimate.
 pub const MAX_SHOTS: u64 = 1_000_000_000_000;
+/// Largest number of evolutions of flipped initial states, `R · distinct patterns`, with a
+/// preparation error and noise not redrawn every shot (checked once the patterns are drawn).
+pub const MAX_PATTERN_EVOLUTIONS: u64 = 1_000_000;
 
 /// A single-site state of the initial product state.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -73,6 +76,28 @@ impl SiteState {
             .iter()
             .find(|(v, _)| *v == self)
             .map_or("?", |(_, s)| s)
+    }
+}
+
+/// A preparation error: in every shot, every site's initial single-site state has X applied
+/// to it with probability `flip_probability`, independently of the other sites and shots.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PreparationError {
+    /// q, from 0 to 1.
+    pub flip_probability: f64,
+}
+
+impl SiteState {
+    /// The state after X, up to a global phase: `|0⟩ ↔ |1⟩`, `|+i⟩ ↔ |−i⟩` (X|+i⟩ = i|−i⟩),
+    /// `|±⟩` unchanged (X|−⟩ = −|−⟩).
+    pub fn flipped(self) -> SiteState {
+        match self {
+            SiteState::Zero => SiteState::One,
+            SiteState::One => SiteState::Zero,
+            SiteState::PlusI => SiteState::MinusI,
+            SiteState::MinusI => SiteState::PlusI,
+            SiteState::Plus | SiteState::Minus => self,
+        }
     }
 }
 
@@ -190,9 +215,11 @@ pub struct Scenario {
     pub true_noise: NoiseRecord,
     /// One operator per true source.
     pub true_operators: Vec<NoiseOperator>,
+    /// The preparation error, if the scenario has the key `preparation_error`.
+    pub preparation_error: Option<PreparationError>,
 }
 
-const TOP_KEYS: [&str; 17] = [
+const TOP_KEYS: [&str; 18] = [
     "format",
     "format_version",
     "run_id",
@@ -209,6 +236,7 @@ const TOP_KEYS: [&str; 17] = [
     "seed",
     "noise",
     "true_noise",
+    "preparation_error",
     "$schema",
 ];
 
@@ -457,6 +485,9 @@ pub fn scenario_from_value(value: &Value) -> Result<Scenario, Vec<Problem>> {
         (Some(d), None) => Some(d.clone()),
         _ => None,
     };
+    let preparation_error = top
+        .get("preparation_error")
+        .map(|v| preparation_error(&mut rd, v));
     if let (Some(l), Some(tu)) = (&lattice, time_unit) {
         if let Some((record, _)) = &declared {
             if let Err(ps) = record.expand(l, tu) {
@@ -553,12 +584,34 @@ pub fn scenario_from_value(value: &Value) -> Result<Scenario, Vec<Problem>> {
             noise_operators,
             true_noise,
             true_operators,
+            preparation_error: preparation_error.flatten(),
         }),
         _ => Err(vec![Problem::new(
             "/",
             "is incomplete; see the other messages",
         )]),
     }
+}
+
+/// `{"flip_probability": q}` with `0 ≤ q ≤ 1`.
+fn preparation_error(rd: &mut Reader, v: &Value) -> Option<PreparationError> {
+    let path = "/preparation_error";
+    let obj = rd.object(v, path, &["flip_probability"])?;
+    let q = rd.required(obj, path, "flip_probability").and_then(|q| {
+        let qp = "/preparation_error/flip_probability";
+        let q = rd.number(q, qp)?;
+        if !(0.0..=1.0).contains(&q) {
+            rd.push(
+                qp,
+                format!("is {q}, but a probability must be from 0 to 1; give the chance that one site starts flipped in one shot"),
+            );
+            return None;
+        }
+        Some(q)
+    })?;
+    Some(PreparationError {
+        flip_probability: q,
+    })
 }
 
 /// The root pointer is `""` in RFC 6901; messages use `/` for the whole file.
@@ -1410,5 +1463,61 @@ mod tests {
         v["true_noise"]["extra_sources"][0]["operator"] = serde_json::json!("Z");
         let ps = scenario_from_value(&v).unwrap_err();
         assert_eq!(ps[0].path, "/true_noise/extra_sources/0/operator", "{ps:?}");
+    }
+
+    #[test]
+    fn a_preparation_error_is_read_and_checked() {
+        let mut v = example();
+        assert_eq!(scenario_from_value(&v).unwrap().preparation_error, None);
+        v["preparation_error"] = serde_json::json!({"flip_probability": 0.05});
+        let s = scenario_from_value(&v).unwrap();
+        assert_eq!(
+            s.preparation_error,
+            Some(PreparationError {
+                flip_probability: 0.05
+            })
+        );
+        for (bad, pointer) in [
+            (
+                serde_json::json!({"flip_probability": 1.5}),
+                "/preparation_error/flip_probability",
+            ),
+            (
+                serde_json::json!({"flip_probability": -0.1}),
+                "/preparation_error/flip_probability",
+            ),
+            (
+                serde_json::json!({"flip_probability": "0.1"}),
+                "/preparation_error/flip_probability",
+            ),
+            (serde_json::json!({}), "/preparation_error/flip_probability"),
+            (
+                serde_json::json!({"flip_probability": 0.1, "per_site": true}),
+                "/preparation_error/per_site",
+            ),
+            (serde_json::json!(0.1), "/preparation_error"),
+        ] {
+            v["preparation_error"] = bad.clone();
+            v["colour"] = serde_json::json!("blue");
+            let ps = scenario_from_value(&v).unwrap_err();
+            let paths: Vec<&str> = ps.iter().map(|p| p.path.as_str()).collect();
+            // Collected with the other problems of the file.
+            assert_eq!(paths, ["/colour", pointer], "{bad}");
+        }
+    }
+
+    #[test]
+    fn a_flip_is_x_on_the_single_site_state() {
+        // X|0⟩ = |1⟩, X|+i⟩ = i|−i⟩, X|±⟩ = ±|±⟩ (the eigenvalues of X).
+        let pairs = [
+            (SiteState::Zero, SiteState::One),
+            (SiteState::PlusI, SiteState::MinusI),
+            (SiteState::Plus, SiteState::Plus),
+            (SiteState::Minus, SiteState::Minus),
+        ];
+        for (a, b) in pairs {
+            assert_eq!(a.flipped(), b);
+            assert_eq!(b.flipped(), a);
+        }
     }
 }

@@ -14,7 +14,13 @@
 //!   one row per realization, one row for `once`, or one per shot, realization-major, for
 //!   `every_shot`); attribute `draw_rows` (`realization`, `once` or `shot`), attribute
 //!   `sources_json` (the true sources, with their operators, as JSON); if there were too many
-//!   per-shot draws to store, `draws` is absent and attribute `draws_omitted` says why.
+//!   per-shot draws to store, `draws` is absent and attribute `draws_omitted` says why;
+//! * only if the scenario has a preparation error: root attribute `flip_probability` (q) and
+//!   group `/preparation` with the same attribute and datasets `realization` (int64, rows),
+//!   `flipped` (uint8, rows × n: 1 where the site was flipped) and `shots` (uint64, rows): the
+//!   distinct flip patterns of every realization with their shot counts (one row per shot
+//!   when the noise is redrawn every shot); if `rows × n` exceeds the stored-draw limit, the
+//!   datasets are absent and attribute `patterns_omitted` says why.
 //!
 //! Object modification times are not recorded, so the same simulation gives the same bytes.
 
@@ -110,6 +116,33 @@ pub fn write_truth(path: &Path, truth: &Truth, ctx: &TruthContext) -> Result<()>
                 "more than {MAX_STORED_SHOT_DRAWS} per-shot draws; rerun with fewer shots to keep them"
             ),
         )?,
+    }
+    if let Some(p) = &truth.preparation {
+        w.scalar_attr(&file, "flip_probability", p.flip_probability)?;
+        let g = w.group(&file, "preparation")?;
+        w.scalar_attr(&g, "flip_probability", p.flip_probability)?;
+        match &p.patterns {
+            Some(rows) => {
+                let realization = Array1::from_iter(rows.iter().map(|r| r.realization as i64));
+                let shots = Array1::from_iter(rows.iter().map(|r| r.shots));
+                let mut flipped = Array2::<u8>::zeros((rows.len(), ctx.n_sites));
+                for (k, r) in rows.iter().enumerate() {
+                    for i in 0..ctx.n_sites {
+                        flipped[[k, i]] = (r.mask >> i & 1) as u8;
+                    }
+                }
+                w.dataset(&g, "realization", &realization)?;
+                w.dataset(&g, "flipped", &flipped)?;
+                w.dataset(&g, "shots", &shots)?;
+            }
+            None => w.str_attr(
+                &g,
+                "patterns_omitted",
+                &format!(
+                    "more than {MAX_STORED_SHOT_DRAWS} pattern entries (rows × sites); rerun with fewer shots or realizations to keep them"
+                ),
+            )?,
+        }
     }
     drop(file);
     Ok(())

@@ -56,6 +56,20 @@ pub fn bessel_j_all(order: usize, x: f64) -> Vec<f64> {
         out[0] = 1.0;
         return out;
     }
+    if x < 1e-8 {
+        // The recurrence would overflow (2k/x) for tiny x (a Hamiltonian that is a multiple
+        // of the identity has a half-width of about 1e-308). The series
+        // J_k(x) = (x/2)^k/k! · (1 − (x/2)²/(k + 1) + …) has a relative error below 1e-32 here.
+        let h = 0.5 * x;
+        let mut lead = 1.0;
+        for (k, v) in out.iter_mut().enumerate() {
+            if k > 0 {
+                lead *= h / k as f64;
+            }
+            *v = lead * (1.0 - h * h / (k as f64 + 1.0));
+        }
+        return out;
+    }
     // Start well above both the order and the argument: the recurrence then converges to the
     // minimal solution J_k to full precision (Numerical Recipes, §6.5, uses 2·⌈√(40·n)⌉).
     let top = order.max(x.ceil() as usize);
@@ -201,6 +215,33 @@ mod tests {
     use super::super::hamiltonian::PauliSum;
     use super::super::pauli::PauliString;
     use super::*;
+
+    #[test]
+    fn a_hamiltonian_without_terms_leaves_the_state_alone() {
+        // H = 0: e^{−iH t} = 1 (closed form). The spectral half-width is then the slack
+        // f64::MIN_POSITIVE, which once made the Bessel recurrence overflow into NaN.
+        let op = Operator::compile(&PauliSum::new(), 2);
+        let h = std::f64::consts::FRAC_1_SQRT_2;
+        let psi0 = vec![
+            Complex64::new(h, 0.0),
+            Complex64::new(0.0, 0.0),
+            Complex64::new(0.0, h),
+            Complex64::new(0.0, 0.0),
+        ];
+        let mut psi = psi0.clone();
+        evolve(&op, &mut psi, 2.5, 1e-13, &mut Workspace::default());
+        for (a, b) in psi.iter().zip(&psi0) {
+            assert!((a - b).norm() < 1e-15, "{a} vs {b}");
+        }
+        // Small arguments: scipy.special.jv(k, 1e-9) (SciPy 1.17) gives 1.0,
+        // 4.999999999999994e-10 and 1.2499999999999948e-19 for k = 0, 1, 2; these carry a
+        // relative error of about 4e-15 themselves (the series gives 5e-10 and 1.25e-19 to
+        // 1e-19 relative), hence the tolerance 1e-14.
+        let j = bessel_j_all(2, 1e-9);
+        assert_eq!(j[0], 1.0);
+        assert!((j[1] / 4.999_999_999_999_994e-10 - 1.0).abs() < 1e-14);
+        assert!((j[2] / 1.249_999_999_999_994_8e-19 - 1.0).abs() < 1e-14);
+    }
 
     #[test]
     fn bessel_values_match_scipy_jv() {

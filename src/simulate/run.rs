@@ -13,7 +13,18 @@
 //! order), then per time, per observable (name order), the shots. With noise redrawn every
 //! shot, each shot is a fresh draw and a full evolution, and contributes one outcome per time
 //! and observable: `R · S` evolutions.
+//!
+//! With a preparation error (each site's initial state flipped by X with probability q in
+//! every shot), a realization draws after its noise the numbers of shots with each flip
+//! pattern ([`sample::flip_pattern_counts`], a `BTreeMap` from pattern to count), evolves each
+//! distinct pattern once under the realization's `H(g)`, in pattern order, and samples that
+//! pattern's shots from it (per time, per observable). Shot means pool all S shots; the exact
+//! value is the mixture `Σ_p N_p ⟨O⟩_p / S`. With noise redrawn every shot, the shot's pattern
+//! is drawn after its noise (one uniform per site). Without the key, or with q = 0, no number
+//! is drawn for it and the output is the same as without the feature.
 
+use std::collections::BTreeMap;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::time::Instant;
 
 use ndarray::Array2;
@@ -25,8 +36,9 @@ use super::hamiltonian::{Operator, PauliSum};
 use super::pauli::{parity_sign, PauliString};
 use super::propagate::{evolve, Workspace, DEFAULT_TOLERANCE};
 use super::sample;
+use crate::error::Problem;
 use crate::inputs::scenario::{
-    instance_supports, NoiseOperator, ObservableSpec, Scenario, SiteState,
+    instance_supports, NoiseOperator, ObservableSpec, Scenario, SiteState, MAX_PATTERN_EVOLUTIONS,
 };
 use crate::model::noise::Amplitude;
 use crate::model::{Family, Hamiltonian, Observable, Redrawn, Run, Shots, Terms};
@@ -68,6 +80,29 @@ pub struct Truth {
     /// The draws `g`, one row per draw: R rows (every_realization), 1 (once), R·S (every_shot,
     /// realization-major) or `None` if there would be more than [`MAX_STORED_SHOT_DRAWS`].
     pub draws: Option<Array2<f64>>,
+    /// The preparation error, if the scenario has one.
+    pub preparation: Option<PreparationTruth>,
+}
+
+/// What the simulator drew for a preparation error.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PreparationTruth {
+    /// q.
+    pub flip_probability: f64,
+    /// The flip patterns used: per realization (in order) its distinct patterns in increasing
+    /// order of the mask with their shot counts; every_shot: one row per shot, realization-major,
+    /// with count 1. `None` if `rows × n_sites` would exceed [`MAX_STORED_SHOT_DRAWS`].
+    pub patterns: Option<Vec<PatternRow>>,
+}
+
+/// One flip pattern of one realization.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct PatternRow {
+    pub realization: usize,
+    /// Bit `i` set if site `i` was flipped.
+    pub mask: u64,
+    /// Number of shots prepared with this pattern.
+    pub shots: u64,
 }
 
 /// Work counters and accuracy of a simulation.
@@ -79,6 +114,9 @@ pub struct Stats {
     pub max_truncation_bound: f64,
     /// Largest norm drift seen along one evolution.
     pub max_norm_drift: f64,
+    /// Sum over realizations of the number of distinct flip patterns evolved (0 without a
+    /// preparation error; every_shot: shots with at least one flip).
+    pub flip_patterns: usize,
     pub seconds: f64,
 }
 
@@ -163,12 +201,54 @@ impl Compiled {
 
     /// Mean of `shots` outcomes on `psi`.
     fn shot_mean(&self, rng: &mut impl RngCore, psi: &[Complex64], exact: f64, shots: u64) -> f64 {
+        self.shot_tally(rng, psi, exact, shots).mean(shots)
+    }
+
+    /// `shots` outcomes on `psi`, as a count of `+1` (Pauli product) or a sum (weighted sum).
+    fn shot_tally(
+        &self,
+        rng: &mut impl RngCore,
+        psi: &[Complex64],
+        exact: f64,
+        shots: u64,
+    ) -> Tally {
         if self.single {
-            return sample::pauli_shot_mean(rng, shots, exact);
+            return Tally::Plus(sample::pauli_plus_count(rng, shots, exact));
         }
         let rotated = self.rotated(psi);
         let states = sample::sample_basis_states(rng, &rotated, shots);
-        states.iter().map(|&b| self.outcome(b)).sum::<f64>() / shots as f64
+        Tally::Sum(states.iter().map(|&b| self.outcome(b)).sum::<f64>())
+    }
+}
+
+/// Shot outcomes pooled over flip patterns: `+1` counts of a Pauli product (exact integers) or
+/// the sum of the values of a weighted sum (added in pattern order).
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Tally {
+    Empty,
+    Plus(u64),
+    Sum(f64),
+}
+
+impl Tally {
+    /// Adds the outcomes of more shots; the first addition keeps the value as it is.
+    fn add(self, more: Tally) -> Tally {
+        match (self, more) {
+            (Tally::Empty, x) | (x, Tally::Empty) => x,
+            (Tally::Plus(a), Tally::Plus(b)) => Tally::Plus(a + b),
+            (Tally::Sum(a), Tally::Sum(b)) => Tally::Sum(a + b),
+            // One observable is always tallied the same way.
+            (x, _) => x,
+        }
+    }
+
+    /// The mean over `shots` shots: `2k/S − 1` for a count, `sum/S` for a sum.
+    fn mean(self, shots: u64) -> f64 {
+        match self {
+            Tally::Plus(k) => 2.0 * k as f64 / shots as f64 - 1.0,
+            Tally::Sum(x) => x / shots as f64,
+            Tally::Empty => 0.0,
+        }
     }
 }
 
@@ -227,6 +307,16 @@ pub fn product_state(labels: &[SiteState]) -> Vec<Complex64> {
         psi = next;
     }
     psi
+}
+
+/// The labels with X applied on the sites set in `mask` (up to global phases, see
+/// [`SiteState::flipped`]).
+pub fn flipped_labels(labels: &[SiteState], mask: u64) -> Vec<SiteState> {
+    labels
+        .iter()
+        .enumerate()
+        .map(|(i, &l)| if mask >> i & 1 == 1 { l.flipped() } else { l })
+        .collect()
 }
 
 /// Adds `coefficient · V` for a noise operator on `support`.
@@ -325,7 +415,16 @@ struct RealizationResult {
     values: Vec<Array2<f64>>, // per observable: 1 × T shot means
     exact: Vec<Vec<f64>>,     // per observable: T
     draws: Vec<Vec<f64>>,     // rows of g
+    patterns: Vec<PatternRow>,
     stats: Stats,
+}
+
+/// A realization after its random draws for the noise and the preparation, before evolution.
+struct Prepared {
+    rng: rand_chacha::ChaCha20Rng,
+    g: Vec<f64>,
+    /// Flip pattern → shots.
+    patterns: BTreeMap<u64, u64>,
 }
 
 fn noisy_operator(base: &PauliSum, inst: &[TrueInstance], g: &[f64], n: usize) -> Operator {
@@ -341,8 +440,24 @@ fn noisy_operator(base: &PauliSum, inst: &[TrueInstance], g: &[f64], n: usize) -
     Operator::compile(&h, n)
 }
 
-/// Runs the simulation of `s` with `seed`.
+/// Runs the simulation of `s` with `seed`, with as many evolutions as the drawn flip patterns
+/// need (see [`try_simulate`] for the capped version the command line uses).
 pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
+    match run_simulation(s, seed, None) {
+        Ok(sim) => sim,
+        Err(p) => unreachable!("only a cap makes a simulation fail: {p}"),
+    }
+}
+
+/// Runs the simulation of `s` with `seed`, but refuses (before any evolution) when a
+/// preparation error needs more than [`MAX_PATTERN_EVOLUTIONS`] evolutions of flipped states
+/// (realizations × distinct flip patterns). The problem is at the scenario's
+/// `/preparation_error/flip_probability`.
+pub fn try_simulate(s: &Scenario, seed: u64) -> Result<Simulation, Problem> {
+    run_simulation(s, seed, Some(MAX_PATTERN_EVOLUTIONS))
+}
+
+fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulation, Problem> {
     let start = Instant::now();
     let n = s.lattice.n_sites();
     let t_count = s.times.len();
@@ -351,6 +466,15 @@ pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
     let compiled: Vec<Compiled> = s.observables.iter().map(|o| Compiled::new(o, n)).collect();
     let psi0 = product_state(&s.initial_state);
     let mut stats = Stats::default();
+    let q = s.preparation_error.map_or(0.0, |p| p.flip_probability);
+    let recorded = s.preparation_error.is_some();
+    let initial = |mask: u64| {
+        if mask == 0 {
+            psi0.clone()
+        } else {
+            product_state(&flipped_labels(&s.initial_state, mask))
+        }
+    };
 
     // Ideal trace.
     let ideal_op = Operator::compile(&base, n);
@@ -370,24 +494,39 @@ pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
             .collect()
     };
     let shots = s.shots;
-    let results: Vec<RealizationResult> = (0..s.realizations)
-        .into_par_iter()
-        .map(|r| {
-            let mut rng = sample::realization_stream(seed, r);
-            let mut st = Stats::default();
-            let k_obs = compiled.len();
-            let mut values = vec![Array2::<f64>::zeros((1, t_count)); k_obs];
-            let mut exact = vec![vec![0.0; t_count]; k_obs];
-            let mut draws = Vec::new();
-            if redrawn == Redrawn::EveryShot {
+    let k_obs = compiled.len();
+    let results: Vec<RealizationResult> = if redrawn == Redrawn::EveryShot {
+        (0..s.realizations)
+            .into_par_iter()
+            .map(|r| {
+                let mut rng = sample::realization_stream(seed, r);
+                let mut st = Stats::default();
+                let mut values = vec![Array2::<f64>::zeros((1, t_count)); k_obs];
+                let mut exact = vec![vec![0.0; t_count]; k_obs];
+                let mut draws = Vec::new();
+                let mut patterns = Vec::new();
                 let mut sums = vec![vec![0.0; t_count]; k_obs];
                 for _ in 0..shots {
                     let g: Vec<f64> = instances
                         .iter()
                         .map(|i| sample::draw(&mut rng, &i.family))
                         .collect();
+                    let mask = if q > 0.0 {
+                        let p = sample::flip_pattern_counts(&mut rng, n, 1, q);
+                        p.keys().next().copied().unwrap_or(0)
+                    } else {
+                        0
+                    };
+                    if recorded {
+                        patterns.push(PatternRow {
+                            realization: r,
+                            mask,
+                            shots: 1,
+                        });
+                        st.flip_patterns += usize::from(mask != 0);
+                    }
                     let h = noisy_operator(&base, &instances, &g, n);
-                    trajectory(&h, &psi0, &s.times, &mut st, |k, psi| {
+                    trajectory(&h, &initial(mask), &s.times, &mut st, |k, psi| {
                         for (o, c) in compiled.iter().enumerate() {
                             let e = c.exact(psi);
                             exact[o][k] += e;
@@ -402,7 +541,28 @@ pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
                         values[o][[0, k]] = sums[o][k] / shots as f64;
                     }
                 }
-            } else {
+                RealizationResult {
+                    values,
+                    exact,
+                    draws,
+                    patterns,
+                    stats: st,
+                }
+            })
+            .collect()
+    } else {
+        // First every realization's draws (noise, then flip patterns), so that the number of
+        // evolutions is known before any is made; then the evolutions and the shots, which
+        // continue each realization's stream where the draws left it.
+        let total = AtomicU64::new(0);
+        let over = AtomicBool::new(false);
+        let prepared: Vec<Option<Prepared>> = (0..s.realizations)
+            .into_par_iter()
+            .map(|r| {
+                if over.load(Ordering::Relaxed) {
+                    return None;
+                }
+                let mut rng = sample::realization_stream(seed, r);
                 let g: Vec<f64> = if redrawn == Redrawn::Once {
                     once.clone()
                 } else {
@@ -411,37 +571,114 @@ pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
                         .map(|i| sample::draw(&mut rng, &i.family))
                         .collect()
                 };
-                let h = noisy_operator(&base, &instances, &g, n);
-                trajectory(&h, &psi0, &s.times, &mut st, |k, psi| {
-                    for (o, c) in compiled.iter().enumerate() {
-                        let e = c.exact(psi);
-                        exact[o][k] = e;
-                        values[o][[0, k]] = c.shot_mean(&mut rng, psi, e, shots);
+                let patterns = if q > 0.0 {
+                    sample::flip_pattern_counts(&mut rng, n, shots, q)
+                } else {
+                    BTreeMap::from([(0, shots)])
+                };
+                if let Some(cap) = cap {
+                    let count = patterns.len() as u64;
+                    if total.fetch_add(count, Ordering::Relaxed) + count > cap {
+                        over.store(true, Ordering::Relaxed);
                     }
-                });
-                if redrawn == Redrawn::EveryRealization || r == 0 {
-                    draws.push(g);
                 }
-            }
-            RealizationResult {
-                values,
-                exact,
-                draws,
-                stats: st,
-            }
-        })
-        .collect();
+                Some(Prepared { rng, g, patterns })
+            })
+            .collect();
+        if over.load(Ordering::Relaxed) {
+            return Err(Problem::new(
+                "/preparation_error/flip_probability",
+                format!(
+                    "gives more than {} distinct flip patterns over all realizations, and each \
+                     needs its own evolution; use fewer shots or realizations, or a smaller \
+                     flip probability",
+                    cap.unwrap_or(u64::MAX)
+                ),
+            ));
+        }
+        prepared
+            .into_par_iter()
+            .enumerate()
+            .map(|(r, prep)| {
+                let Some(Prepared {
+                    mut rng,
+                    g,
+                    patterns,
+                }) = prep
+                else {
+                    unreachable!("every realization is prepared when none is over the cap")
+                };
+                let mut st = Stats::default();
+                let mut values = vec![Array2::<f64>::zeros((1, t_count)); k_obs];
+                let mut exact = vec![vec![0.0; t_count]; k_obs];
+                let mut tally = vec![vec![Tally::Empty; t_count]; k_obs];
+                let alone = patterns.len() == 1;
+                let h = noisy_operator(&base, &instances, &g, n);
+                for (&mask, &count) in &patterns {
+                    trajectory(&h, &initial(mask), &s.times, &mut st, |k, psi| {
+                        for (o, c) in compiled.iter().enumerate() {
+                            let e = c.exact(psi);
+                            if alone {
+                                exact[o][k] = e;
+                            } else {
+                                exact[o][k] += count as f64 * e;
+                            }
+                            tally[o][k] = tally[o][k].add(c.shot_tally(&mut rng, psi, e, count));
+                        }
+                    });
+                }
+                for o in 0..k_obs {
+                    for k in 0..t_count {
+                        if !alone {
+                            exact[o][k] /= shots as f64;
+                        }
+                        values[o][[0, k]] = tally[o][k].mean(shots);
+                    }
+                }
+                if q > 0.0 {
+                    st.flip_patterns += patterns.len();
+                }
+                let rows = if recorded {
+                    patterns
+                        .iter()
+                        .map(|(&mask, &count)| PatternRow {
+                            realization: r,
+                            mask,
+                            shots: count,
+                        })
+                        .collect()
+                } else {
+                    Vec::new()
+                };
+                let draws = if redrawn == Redrawn::EveryRealization || r == 0 {
+                    vec![g]
+                } else {
+                    Vec::new()
+                };
+                RealizationResult {
+                    values,
+                    exact,
+                    draws,
+                    patterns: rows,
+                    stats: st,
+                }
+            })
+            .collect()
+    };
 
     let r_count = s.realizations;
     let mut draw_rows: Vec<&Vec<f64>> = Vec::new();
+    let mut pattern_rows: Vec<PatternRow> = Vec::new();
     for res in &results {
         stats.evolutions += res.stats.evolutions;
         stats.products += res.stats.products;
+        stats.flip_patterns += res.stats.flip_patterns;
         stats.max_truncation_bound = stats
             .max_truncation_bound
             .max(res.stats.max_truncation_bound);
         stats.max_norm_drift = stats.max_norm_drift.max(res.stats.max_norm_drift);
         draw_rows.extend(res.draws.iter());
+        pattern_rows.extend(res.patterns.iter().copied());
     }
     let draws = if draw_rows.len() * instances.len() <= MAX_STORED_SHOT_DRAWS {
         let mut a = Array2::zeros((draw_rows.len(), instances.len()));
@@ -454,6 +691,11 @@ pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
     } else {
         None
     };
+    let preparation = s.preparation_error.map(|p| PreparationTruth {
+        flip_probability: p.flip_probability,
+        patterns: (pattern_rows.len().saturating_mul(n) <= MAX_STORED_SHOT_DRAWS)
+            .then_some(pattern_rows),
+    });
 
     let mut observables = Vec::new();
     let mut truth_obs = Vec::new();
@@ -506,13 +748,18 @@ pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
     let half = bond_half_spread(s.anisotropy);
     let norms: Vec<f64> = s.coupling.iter().map(|j| j.abs() * half).collect();
     let bond_norm_max = norms.iter().copied().fold(0.0, f64::max);
+    let how = match s.preparation_error {
+        // q = 0 changes nothing in the data, so the run file stays as without the key.
+        Some(p) if p.flip_probability > 0.0 => format!(
+            "quassay simulate, exact state vector, seed {seed}, every site's initial state \
+             flipped with probability {} in every shot",
+            p.flip_probability
+        ),
+        _ => format!("quassay simulate, exact state vector, seed {seed}"),
+    };
     let description = match &s.description {
-        Some(d) => format!(
-            "Simulated data from an invented scenario (quassay simulate, exact state vector, seed {seed}): {d}"
-        ),
-        None => format!(
-            "Simulated data from an invented scenario (quassay simulate, exact state vector, seed {seed})"
-        ),
+        Some(d) => format!("Simulated data from an invented scenario ({how}): {d}"),
+        None => format!("Simulated data from an invented scenario ({how})"),
     };
     let run = Run {
         run_id: s.run_id.clone(),
@@ -529,7 +776,7 @@ pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
         observables,
     };
     stats.seconds = start.elapsed().as_secs_f64();
-    Simulation {
+    Ok(Simulation {
         run,
         truth: Truth {
             seed,
@@ -537,9 +784,10 @@ pub fn simulate(s: &Scenario, seed: u64) -> Simulation {
             instances,
             observables: truth_obs,
             draws,
+            preparation,
         },
         stats,
-    }
+    })
 }
 
 /// The Pauli string of a product over all sites (site 0 first), or a description of a sum.
@@ -617,6 +865,92 @@ mod tests {
             let mut rng = sample::stream(3, 3);
             assert_eq!(c.shot_mean(&mut rng, &psi, 1.0, 50), 1.0, "{p}");
             assert!((c.exact(&psi) - 1.0).abs() < 1e-15);
+        }
+    }
+
+    /// `P|ψ⟩` for a Pauli string, from its action on basis states.
+    fn apply(p: &PauliString, psi: &[Complex64]) -> Vec<Complex64> {
+        let mut out = vec![Complex64::new(0.0, 0.0); psi.len()];
+        for (b, &a) in psi.iter().enumerate() {
+            let (c, phase) = p.apply_to_basis(b as u64);
+            out[c as usize] += phase * a;
+        }
+        out
+    }
+
+    #[test]
+    fn a_flipped_product_state_is_x_on_the_flipped_sites_up_to_a_phase() {
+        // Definition: the flip is X on the site. |⟨flipped | X_mask ψ⟩| = 1 means equal up to
+        // a global phase.
+        let labels: Vec<SiteState> = SiteState::ALL.iter().map(|(l, _)| *l).collect();
+        let psi = product_state(&labels);
+        for mask in [0u64, 0b1, 0b100110, 0b111111, 0b010001] {
+            let sites: Vec<usize> = (0..6).filter(|i| mask >> i & 1 == 1).collect();
+            let letters = "X".repeat(sites.len());
+            let x = PauliString::from_letters(&letters, &sites).unwrap_or(PauliString::IDENTITY);
+            let want = apply(&x, &psi);
+            let got = product_state(&flipped_labels(&labels, mask));
+            let overlap: Complex64 = got.iter().zip(&want).map(|(a, b)| a.conj() * b).sum();
+            assert!((overlap.norm() - 1.0).abs() < 1e-14, "{mask:b}: {overlap}");
+        }
+    }
+
+    /// An invented scenario with `sites` sites, no coupling, no noise (amplitude 0), all in
+    /// `|0⟩`, observables `Z_0` and the mean magnetisation.
+    fn idle(sites: usize, q: f64, realizations: usize, shots: u64) -> Scenario {
+        let text = format!(
+            r#"{{"format": "quassay-scenario", "format_version": 1, "run_id": "invented-idle",
+            "time_unit": "us", "energy_unit": "MHz",
+            "lattice": {{"geometry": "chain", "shape": [{sites}], "boundary": "open"}},
+            "hamiltonian": {{"J": 0.0, "anisotropy": 0.0}},
+            "initial_state": "0", "times": [0.0, 1.0],
+            "observables": [{{"name": "Z_0", "pauli": "Z", "sites": [0]}},
+              {{"name": "m", "pauli": "Z", "over": "each_site"}}],
+            "realizations": {realizations}, "shots": {shots}, "seed": 5,
+            "preparation_error": {{"flip_probability": {q}}},
+            "noise": {{"format": "quassay-noise", "format_version": 1,
+              "frequency_unit": "kHz", "redrawn": "every_realization",
+              "sources": [{{"name": "d", "acts_on": "each_site", "operator": "Z",
+                "amplitude": 0.0, "distribution": {{"family": "uniform"}},
+                "mean_offset": 0.0, "mean_offset_uncertainty": 0.0}}]}}}}"#
+        );
+        crate::inputs::scenario::parse_scenario(&text).unwrap()
+    }
+
+    #[test]
+    fn too_many_flip_patterns_are_refused_before_any_evolution() {
+        // 3 realizations × (2^4 patterns, almost surely all drawn with q = 0.5 and 1000 shots:
+        // each is missed with probability (15/16)^1000 < 1e-28) = 48 > 20.
+        let s = idle(4, 0.5, 3, 1000);
+        let p = run_simulation(&s, 5, Some(20)).unwrap_err();
+        assert_eq!(p.path, "/preparation_error/flip_probability");
+        assert!(p.message.contains("more than 20"), "{}", p.message);
+        let sim = run_simulation(&s, 5, Some(48)).unwrap();
+        assert_eq!(sim.stats.flip_patterns, 48);
+        // One ideal evolution and one per pattern.
+        assert_eq!(sim.stats.evolutions, 49);
+    }
+
+    #[test]
+    fn q_zero_draws_nothing_and_q_one_flips_every_site() {
+        let zero = simulate(&idle(3, 0.0, 2, 10), 5);
+        let none = {
+            let mut s = idle(3, 0.0, 2, 10);
+            s.preparation_error = None;
+            simulate(&s, 5)
+        };
+        assert_eq!(zero.run, none.run);
+        let rows = zero.truth.preparation.unwrap().patterns.unwrap();
+        assert_eq!(rows.len(), 2);
+        assert!(rows.iter().all(|r| r.mask == 0 && r.shots == 10));
+        // q = 1: every shot starts in |111⟩, so Z_0 = −1 and m = −1 exactly.
+        let one = simulate(&idle(3, 1.0, 2, 10), 5);
+        for o in &one.truth.observables {
+            assert!(o.exact.iter().all(|&x| x == -1.0), "{}", o.name);
+            assert!(o.ideal.iter().all(|&x| x == 1.0), "{}", o.name);
+        }
+        for o in &one.run.observables {
+            assert!(o.values.iter().all(|&x| x == -1.0), "{}", o.name);
         }
     }
 }

@@ -18,7 +18,12 @@
 //!   documented in docs/simulator.md, a zero-mean mixture of the two end points with 0;
 //! * binomial: a sum of Bernoulli trials for `n ≤ 1024`; above, Knuth's exact splitting by a
 //!   Beta-distributed order statistic (TAOCP vol. 2, §3.4.1 F) until `n ≤ 1024`, with Gamma
-//!   variates by Marsaglia and Tsang (2000).
+//!   variates by Marsaglia and Tsang (2000);
+//! * flip patterns of a preparation error: the number of shots with each pattern, by
+//!   splitting the shots site by site with binomial draws (exact, see
+//!   [`flip_pattern_counts`]).
+
+use std::collections::BTreeMap;
 
 use num_complex::Complex64;
 use rand_chacha::rand_core::{RngCore, SeedableRng};
@@ -216,9 +221,15 @@ pub fn binomial(rng: &mut impl RngCore, n: u64, p: f64) -> u64 {
 /// The mean of `shots` ±1 outcomes of a Pauli product with exact expectation `expectation`:
 /// `2·Binomial(S, p)/S − 1`, `p = (1 + ⟨P⟩)/2` clamped to `[0, 1]`.
 pub fn pauli_shot_mean(rng: &mut impl RngCore, shots: u64, expectation: f64) -> f64 {
-    let p = (0.5 * (1.0 + expectation)).clamp(0.0, 1.0);
-    let k = binomial(rng, shots, p);
+    let k = pauli_plus_count(rng, shots, expectation);
     2.0 * k as f64 / shots as f64 - 1.0
+}
+
+/// The number of `+1` outcomes among `shots` shots of a Pauli product with exact expectation
+/// `expectation`: `Binomial(S, p)`, `p = (1 + ⟨P⟩)/2` clamped to `[0, 1]`.
+pub fn pauli_plus_count(rng: &mut impl RngCore, shots: u64, expectation: f64) -> u64 {
+    let p = (0.5 * (1.0 + expectation)).clamp(0.0, 1.0);
+    binomial(rng, shots, p)
 }
 
 /// Draws `shots` basis states from the probabilities `|ψ_b|²` (cumulative sums in index order,
@@ -238,6 +249,42 @@ pub fn sample_basis_states(rng: &mut impl RngCore, psi: &[Complex64], shots: u64
             i.min(psi.len() - 1) as u64
         })
         .collect()
+}
+
+/// How many of `shots` shots have each flip pattern, when each of `n_sites` sites is flipped
+/// independently with probability `q` in every shot: a map from the pattern (bit `i` set if
+/// site `i` is flipped) to its number of shots, patterns with no shot left out.
+///
+/// Exact: the counts of the `2^n` patterns are multinomial with the product probabilities, and
+/// this draws them by splitting, site by site, every group of shots that agree on the sites
+/// before into those that flip the next site (`Binomial(group, q)`) and the others; given the
+/// split, each part again has independent sites with probability `q`. The order is fixed:
+/// depth first, site 0 first, the unflipped part before the flipped one, empty groups skipped.
+/// For `shots = 1` this is one uniform per site (`u < q`), in site order. Cost: about
+/// `n · min(shots, 1024 · patterns)` uniforms, whatever the number of shots.
+pub fn flip_pattern_counts(
+    rng: &mut impl RngCore,
+    n_sites: usize,
+    shots: u64,
+    q: f64,
+) -> BTreeMap<u64, u64> {
+    let mut out = BTreeMap::new();
+    // (first undecided site, pattern so far, shots in the group); popped last-in first-out,
+    // so the unflipped part (pushed last) is split first.
+    let mut stack = vec![(0usize, 0u64, shots)];
+    while let Some((site, mask, count)) = stack.pop() {
+        if count == 0 {
+            continue;
+        }
+        if site == n_sites {
+            out.insert(mask, count);
+            continue;
+        }
+        let flipped = binomial(rng, count, q);
+        stack.push((site + 1, mask | (1u64 << site), flipped));
+        stack.push((site + 1, mask, count - flipped));
+    }
+    out
 }
 
 #[cfg(test)]
@@ -373,5 +420,62 @@ mod tests {
         let f0 = draws.iter().filter(|&&b| b == 0).count() as f64 / 20_000.0;
         // Standard error √(0.16/20000) = 0.0028; 5 of them.
         assert!((f0 - 0.2).abs() < 0.015, "{f0}");
+    }
+
+    #[test]
+    fn flip_patterns_follow_the_product_law() {
+        // Two sites, q = 0.3: patterns 00, 01 (site 0 flipped), 10, 11 have the probabilities
+        // 0.49, 0.21, 0.21, 0.09 (independent sites, closed form). One draw of S shots: each
+        // frequency has standard error √(p(1−p)/S); the checks use 5 of them. S = 10^9 goes
+        // through the Beta splitting of the binomial sampler, S = 2·10^5 through Bernoulli sums.
+        let probs = [0.49, 0.21, 0.21, 0.09];
+        let mut rng = stream(8, 2);
+        for shots in [200_000u64, 1_000_000_000] {
+            let counts = flip_pattern_counts(&mut rng, 2, shots, 0.3);
+            assert_eq!(counts.values().sum::<u64>(), shots);
+            for (mask, p) in probs.iter().enumerate() {
+                let f = counts.get(&(mask as u64)).copied().unwrap_or(0) as f64 / shots as f64;
+                let se = (p * (1.0 - p) / shots as f64).sqrt();
+                assert!((f - p).abs() < 5.0 * se, "{shots} {mask} {f}");
+            }
+        }
+        // The joint law of a few shots, not only the frequencies: with S = 3 the chance that
+        // all three shots have pattern 00 is 0.49³ = 0.117649. 20 000 repetitions: standard
+        // error √(0.1176 · 0.8824 / 20000) = 0.00228; 5 of them.
+        let reps = 20_000;
+        let all_clean = (0..reps)
+            .filter(|_| flip_pattern_counts(&mut rng, 2, 3, 0.3).get(&0) == Some(&3))
+            .count() as f64
+            / reps as f64;
+        assert!((all_clean - 0.117_649).abs() < 0.0114, "{all_clean}");
+    }
+
+    #[test]
+    fn flip_patterns_at_the_ends_use_no_randomness_and_one_shot_uses_one_uniform_per_site() {
+        let mut rng = stream(4, 4);
+        assert_eq!(
+            flip_pattern_counts(&mut rng, 5, 77, 0.0),
+            BTreeMap::from([(0, 77)])
+        );
+        assert_eq!(
+            flip_pattern_counts(&mut rng, 5, 77, 1.0),
+            BTreeMap::from([(0b11111, 77)])
+        );
+        assert_eq!(rng.next_u64(), stream(4, 4).next_u64());
+        // One shot: site i is flipped iff the i-th uniform is below q.
+        for seed in 0..50 {
+            let mut a = stream(seed, 9);
+            let mut b = a.clone();
+            let got = flip_pattern_counts(&mut a, 6, 1, 0.4);
+            let mask = (0..6).fold(0u64, |m, i| {
+                if uniform01(&mut b) < 0.4 {
+                    m | (1 << i)
+                } else {
+                    m
+                }
+            });
+            assert_eq!(got, BTreeMap::from([(mask, 1)]));
+            assert_eq!(a.next_u64(), b.next_u64());
+        }
     }
 }
