@@ -145,8 +145,7 @@ mod tests {
     use crate::model::Family;
 
     /// An invented scenario: `sites` sites of an open chain from `state`, with a field
-    /// `0.4 Z` on every site (a Hamiltonian of zero spectral width, H = 0, is avoided: the
-    /// propagator returns NaN for it, a defect reported to its owner).
+    /// `0.4 Z` on every site, so that the ideal evolution is not trivial.
     fn scenario(sites: usize, j: f64, state: &str, observable: &str) -> Scenario {
         let text = format!(
             r#"{{"format": "quassay-scenario", "format_version": 1, "run_id": "invented-unit",
