@@ -31,6 +31,7 @@ use super::variance::{
     bhatia_davis_max, hoeffding_mean_radius, mean_and_variance, noise_variance,
     shot_variance_counts, shot_variance_stderr,
 };
+use crate::bounds::global::PointBounds;
 use crate::bounds::global::{
     evaluate_point, global_sensitivities, PointInputs, ShotData, SourceData,
 };
@@ -167,6 +168,8 @@ pub struct ImpliedScale {
 #[derive(Debug, Clone, PartialEq)]
 pub struct ObservableChecks {
     pub name: String,
+    /// `s_O` of the observable.
+    pub spread: f64,
     pub points: Vec<PointCheck>,
     pub implied_scale: ImpliedScale,
     /// Time index of the earliest failed test of this observable (decision family).
@@ -233,72 +236,140 @@ pub fn check_run_with_sensitivities(
     check_level: f64,
     sensitivities: Option<&Sensitivities>,
 ) -> ChecksReport {
-    let r = run.n_realizations();
-    let n_times = run.n_times();
-    let variance_not_possible = match r {
-        0 => Some("the run has no realizations".to_string()),
-        1 => Some(
-            "only one realization: there is no spread between realizations to compare with the \
-             record; record at least two realizations to test it"
-                .to_string(),
-        ),
-        _ => None,
-    };
-    let m_var = if r >= 2 {
-        n_times * run.observables.len()
-    } else {
-        0
-    };
-    let m_ideal: usize = if r >= 1 {
-        run.observables.iter().filter(|o| o.ideal.is_some()).count() * n_times
-    } else {
-        0
-    };
-    let n_tests = m_var + m_ideal;
-    let level_ok = check_level > 0.0 && check_level < 1.0;
-    let not_performed = (!level_ok).then(|| {
-        format!("the check level {check_level} is not strictly between 0 and 1; give e.g. 0.01")
-    });
-    let gamma = if level_ok && n_tests > 0 {
-        MEAN_INTERVAL_SHARE * check_level / n_tests as f64
-    } else {
-        0.0
-    };
-    let mut observables = Vec::with_capacity(run.observables.len());
-    if level_ok {
-        for (j, o) in run.observables.iter().enumerate() {
-            let Some(ob) = bounds.observables.get(j) else {
-                break;
-            };
-            let mut points = Vec::with_capacity(n_times);
-            for (k, &t) in run.times.iter().enumerate() {
-                let sens = match sensitivities.and_then(|s| s.get(j)).and_then(|v| v.get(k)) {
+    let with_ideal = run.observables.iter().filter(|o| o.ideal.is_some()).count();
+    let plan = CheckPlan::new(
+        &run.times,
+        &bounds.sources,
+        noise.redrawn,
+        run.n_realizations(),
+        run.observables.len(),
+        with_ideal,
+        check_level,
+    );
+    let observables = run
+        .observables
+        .iter()
+        .zip(&bounds.observables)
+        .enumerate()
+        .map(|(j, (o, ob))| {
+            let sens = sensitivities.and_then(|s| s.get(j)).map(|v| v.as_slice());
+            plan.observable(o, &ob.mean, &ob.points, sens)
+        })
+        .collect();
+    plan.finish(observables)
+}
+
+/// The checks of a run, one observable at a time (so a streaming reader needs only one
+/// observable's R × T values in memory): [`CheckPlan::new`] with the run's dimensions, then
+/// [`CheckPlan::observable`] for each observable in run order, then [`CheckPlan::finish`].
+/// The numbers are those of [`check_run`] exactly.
+#[derive(Debug, Clone)]
+pub struct CheckPlan<'a> {
+    times: &'a [f64],
+    sources: &'a [SourceData],
+    redrawn: Redrawn,
+    realizations: usize,
+    level: f64,
+    gamma: f64,
+    n_tests: usize,
+    not_performed: Option<String>,
+    variance_not_possible: Option<String>,
+}
+
+impl<'a> CheckPlan<'a> {
+    /// A plan for `n_observables` observables, `n_with_ideal` of which give an ideal
+    /// reference, over `times`, with `realizations` realizations.
+    pub fn new(
+        times: &'a [f64],
+        sources: &'a [SourceData],
+        redrawn: Redrawn,
+        realizations: usize,
+        n_observables: usize,
+        n_with_ideal: usize,
+        check_level: f64,
+    ) -> CheckPlan<'a> {
+        let r = realizations;
+        let variance_not_possible = match r {
+            0 => Some("the run has no realizations".to_string()),
+            1 => Some(
+                "only one realization: there is no spread between realizations to compare with \
+                 the record; record at least two realizations to test it"
+                    .to_string(),
+            ),
+            _ => None,
+        };
+        let m_var = if r >= 2 {
+            times.len() * n_observables
+        } else {
+            0
+        };
+        let m_ideal = if r >= 1 {
+            n_with_ideal * times.len()
+        } else {
+            0
+        };
+        let level_ok = check_level > 0.0 && check_level < 1.0;
+        let n_tests = if level_ok { m_var + m_ideal } else { 0 };
+        let not_performed = (!level_ok).then(|| {
+            format!("the check level {check_level} is not strictly between 0 and 1; give e.g. 0.01")
+        });
+        let gamma = if n_tests > 0 {
+            MEAN_INTERVAL_SHARE * check_level / n_tests as f64
+        } else {
+            0.0
+        };
+        CheckPlan {
+            times,
+            sources,
+            redrawn,
+            realizations,
+            level: check_level,
+            gamma,
+            n_tests,
+            not_performed,
+            variance_not_possible,
+        }
+    }
+
+    /// The tests of one observable (before Holm), given the certificate's mean and bounds per
+    /// time and, optionally, per-time per-source sensitivities.
+    pub fn observable(
+        &self,
+        o: &Observable,
+        mean: &[f64],
+        points_bounds: &[PointBounds],
+        sensitivities: Option<&[Vec<f64>]>,
+    ) -> ObservableChecks {
+        let r = self.realizations;
+        let mut points = Vec::with_capacity(self.times.len());
+        if self.not_performed.is_none() {
+            for (k, &t) in self.times.iter().enumerate() {
+                let sens = match sensitivities.and_then(|v| v.get(k)) {
                     Some(e) => e.clone(),
-                    None => global_sensitivities(bounds.sources.len(), o.spread(), t),
+                    None => global_sensitivities(self.sources.len(), o.spread(), t),
                 };
                 let column: Vec<f64> = o.values.column(k).iter().copied().collect();
                 let variance = (r >= 2).then(|| {
-                    variance_test(o, k, &column, noise.redrawn, &bounds.sources, &sens, gamma)
-                });
-                let variance = variance.map(|mut v| {
+                    let mut v =
+                        variance_test(o, k, &column, self.redrawn, self.sources, &sens, self.gamma);
                     v.std_lower_distribution_free = maurer_pontil::std_lower_bound(
                         v.sample_variance.sqrt(),
                         r,
                         o.spread(),
-                        check_level,
+                        self.level,
                     );
                     v
                 });
-                let ideal = match (&o.ideal, ob.points.get(k), ob.mean.get(k)) {
-                    (Some(ideal), Some(pb), Some(&mean)) if r >= 1 => {
-                        let deviation = mean - ideal[k];
+                let ideal = match (&o.ideal, points_bounds.get(k), mean.get(k)) {
+                    (Some(ideal), Some(pb), Some(&m)) if r >= 1 => {
+                        let deviation = m - ideal[k];
                         let inputs = IdealInputs {
-                            run,
+                            realizations: r,
                             observable: o,
                             k,
                             t,
-                            sources: &bounds.sources,
-                            redrawn: noise.redrawn,
+                            sources: self.sources,
+                            redrawn: self.redrawn,
                         };
                         Some(IdealTest {
                             ideal: ideal[k],
@@ -319,41 +390,43 @@ pub fn check_run_with_sensitivities(
                     ideal,
                 });
             }
-            observables.push(ObservableChecks {
-                name: o.name.clone(),
-                points,
-                implied_scale: ImpliedScale {
-                    value: None,
-                    time_index: None,
-                    distribution_free: None,
-                    per_time_level: None,
-                    reason: None,
-                },
-                earliest_failure: None,
-            });
+        }
+        ObservableChecks {
+            name: o.name.clone(),
+            spread: o.spread(),
+            points,
+            implied_scale: ImpliedScale {
+                value: None,
+                time_index: None,
+                distribution_free: None,
+                per_time_level: None,
+                reason: None,
+            },
+            earliest_failure: None,
         }
     }
-    apply_holm(&mut observables, check_level);
-    let mut failures = Vec::new();
-    for (oc, o) in observables.iter_mut().zip(&run.observables) {
-        collect_failures(oc, &mut failures);
-        oc.earliest_failure = failures
-            .iter()
-            .filter(|f| f.observable == oc.name)
-            .map(|f| f.time_index)
-            .min();
-        oc.implied_scale = implied_scale(oc, o, r, noise.redrawn, check_level);
-    }
-    ChecksReport {
-        check_level,
-        realizations: r,
-        redrawn: noise.redrawn,
-        variance_not_possible,
-        mean_interval_probability: gamma,
-        not_performed,
-        n_tests: if level_ok { n_tests } else { 0 },
-        observables,
-        failures,
+
+    /// Holm over all observables' tests, the failures, the implied scales: the report.
+    pub fn finish(self, mut observables: Vec<ObservableChecks>) -> ChecksReport {
+        apply_holm(&mut observables, self.level);
+        let mut failures = Vec::new();
+        for oc in observables.iter_mut() {
+            let before = failures.len();
+            collect_failures(oc, &mut failures);
+            oc.earliest_failure = failures[before..].iter().map(|f| f.time_index).min();
+            oc.implied_scale = implied_scale(oc, self.realizations, self.redrawn, self.level);
+        }
+        ChecksReport {
+            check_level: self.level,
+            realizations: self.realizations,
+            redrawn: self.redrawn,
+            variance_not_possible: self.variance_not_possible,
+            mean_interval_probability: self.gamma,
+            not_performed: self.not_performed,
+            n_tests: self.n_tests,
+            observables,
+            failures,
+        }
     }
 }
 
@@ -420,7 +493,7 @@ fn variance_test(
 
 /// What the ideal-reference p-value needs to re-evaluate the bounds at other levels.
 struct IdealInputs<'a> {
-    run: &'a Run,
+    realizations: usize,
     observable: &'a Observable,
     k: usize,
     t: f64,
@@ -431,7 +504,7 @@ struct IdealInputs<'a> {
 /// `E_avg(ε) + E_shot(ε)` at one point, pointwise, with the default split of ε (equal halves,
 /// or all to the shot term when the noise is redrawn every shot).
 fn half_width_at(inp: &IdealInputs, eps: f64) -> f64 {
-    let r = inp.run.n_realizations();
+    let r = inp.realizations;
     let (p, alpha) = match inp.redrawn {
         Redrawn::EveryShot => (0.0, eps),
         _ => (0.5 * eps, 0.5 * eps),
@@ -566,13 +639,7 @@ fn collect_failures(oc: &ObservableChecks, out: &mut Vec<Failure>) {
 }
 
 /// The implied noise scale of one observable (see [`ImpliedScale`]).
-fn implied_scale(
-    oc: &ObservableChecks,
-    o: &Observable,
-    r: usize,
-    redrawn: Redrawn,
-    level: f64,
-) -> ImpliedScale {
+fn implied_scale(oc: &ObservableChecks, r: usize, redrawn: Redrawn, level: f64) -> ImpliedScale {
     let none = |reason: &str| ImpliedScale {
         value: None,
         time_index: None,
@@ -621,7 +688,7 @@ fn implied_scale(
             best = lambda;
             best_k = k;
         }
-        let sd_low = maurer_pontil::std_lower_bound(v.sample_variance.sqrt(), r, o.spread(), beta);
+        let sd_low = maurer_pontil::std_lower_bound(v.sample_variance.sqrt(), r, oc.spread, beta);
         let lambda_mp = ((sd_low * sd_low - v.v_shot).max(0.0) / v.v_noise).sqrt();
         best_mp = best_mp.max(lambda_mp);
     }
@@ -1121,7 +1188,7 @@ mod tests {
         let noise = record(0.05, Redrawn::EveryRealization);
         let run = simulate(0.05, 20, 100, 9);
         let inp = IdealInputs {
-            run: &run,
+            realizations: run.n_realizations(),
             observable: &run.observables[0],
             k: 2,
             t: TIMES[2],
