@@ -409,3 +409,287 @@ fn the_schema_accepts_the_test_scenario_and_rejects_an_unknown_key() {
     v["noise"]["sources"][0]["operator"] = json!("Q");
     assert!(!validator.is_valid(&v));
 }
+
+// ---- Preparation error (each site flipped with probability q in every shot) ----
+
+/// The datasets of two HDF5 files agree bit for bit (float64 and int64 datasets by name).
+fn same_f64_datasets(a: &hdf5::File, b: &hdf5::File, names: &[&str]) {
+    for name in names {
+        let x: Vec<u64> = read_f64(a, name).iter().map(|v| v.to_bits()).collect();
+        let y: Vec<u64> = read_f64(b, name).iter().map(|v| v.to_bits()).collect();
+        assert_eq!(x, y, "{name}");
+    }
+}
+
+fn simulate_into(scenario: &Path, out: &Path) {
+    quassay()
+        .arg("simulate")
+        .arg(scenario)
+        .arg("-o")
+        .arg(out)
+        .assert()
+        .success();
+}
+
+#[test]
+fn without_a_flip_probability_the_bundled_example_is_reproduced_exactly() {
+    // example_runs/chain12 was generated before the preparation error existed; without the
+    // key, and with q = 0, the run must be the same bit for bit.
+    let example = crate::util::repo().join("example_runs/chain12");
+    let dir = scratch();
+    let plain = dir.path().join("plain");
+    simulate_into(&example.join("scenario.json"), &plain);
+    let mut v: Value =
+        serde_json::from_str(&std::fs::read_to_string(example.join("scenario.json")).unwrap())
+            .unwrap();
+    v["preparation_error"] = json!({"flip_probability": 0.0});
+    let zero = dir.path().join("zero");
+    simulate_into(&write_json(dir.path(), "q0.json", &v), &zero);
+
+    let want = quassay::inputs::run_file::read_run(&example.join("run.h5")).unwrap();
+    for out in [&plain, &zero] {
+        let got = quassay::inputs::run_file::read_run(&out.join("run.h5")).unwrap();
+        assert_eq!(got, want);
+        for (a, b) in got.observables.iter().zip(&want.observables) {
+            let ba: Vec<u64> = a.values.iter().map(|x| x.to_bits()).collect();
+            let bb: Vec<u64> = b.values.iter().map(|x| x.to_bits()).collect();
+            assert_eq!(ba, bb, "{}", a.name);
+        }
+        let t_want = hdf5::File::open(example.join("truth.h5")).unwrap();
+        let t_got = hdf5::File::open(out.join("truth.h5")).unwrap();
+        same_f64_datasets(
+            &t_got,
+            &t_want,
+            &[
+                "times",
+                "noise/draws",
+                "observables/Z_6/exact",
+                "observables/ZZ_5_6/exact",
+                "observables/staggered_z/exact",
+                "observables/staggered_z/ideal",
+            ],
+        );
+    }
+    // Without the key the truth file is byte for byte the bundled one.
+    assert!(hdf5::File::open(plain.join("truth.h5"))
+        .unwrap()
+        .attr("flip_probability")
+        .is_err());
+    // With q = 0 it says so, and lists one pattern (nothing flipped) of all shots per
+    // realization.
+    let t = hdf5::File::open(zero.join("truth.h5")).unwrap();
+    assert_eq!(
+        t.attr("flip_probability")
+            .unwrap()
+            .read_scalar::<f64>()
+            .unwrap(),
+        0.0
+    );
+    let shots = t
+        .dataset("preparation/shots")
+        .unwrap()
+        .read_raw::<u64>()
+        .unwrap();
+    assert_eq!(shots, vec![1000; 40]);
+}
+
+/// An invented idle register: `n` sites, no coupling, no field, noise of amplitude 0, all
+/// sites in |0⟩, observables Z_0 and the mean magnetisation, times 0 and 1 µs.
+fn idle_scenario(n: usize, q: f64, realizations: u64, shots: u64, redrawn: &str) -> Value {
+    let mut v = chain_scenario();
+    v["lattice"] = json!({"geometry": "chain", "shape": [n], "boundary": "open"});
+    v["hamiltonian"] = json!({"J": 0.0, "anisotropy": 0.0});
+    v["initial_state"] = json!("0");
+    v["times"] = json!([0.0, 1.0]);
+    v["observables"] = json!([
+        {"name": "Z_0", "pauli": "Z", "sites": [0]},
+        {"name": "magnetisation", "pauli": "Z", "over": "each_site", "weights": "mean"}
+    ]);
+    v["realizations"] = json!(realizations);
+    v["shots"] = json!(shots);
+    v["noise"]["redrawn"] = json!(redrawn);
+    v["noise"]["sources"][0]["amplitude"] = json!(0.0);
+    v["true_noise"] = json!({"scale": 1.0});
+    v["preparation_error"] = json!({"flip_probability": q});
+    v
+}
+
+#[test]
+fn flipped_preparations_of_an_idle_register_match_the_closed_form() {
+    // Closed form: with H = 0 and no noise, Z_0 of a shot is −1 if site 0 was flipped and +1
+    // otherwise, so E[shot mean] = 1 − 2q; the magnetisation of pattern p is 1 − 2|p|/n.
+    // Four sites: the weights 1/4 and all partial sums are exact in binary, so the truth
+    // file's mixture must equal Σ_p N_p (1 − 2|p|/4) / S bit for bit.
+    let q = 0.1;
+    for (redrawn, r_count, shots) in [
+        ("every_realization", 4u64, 250_000u64),
+        ("once", 1, 1000),
+        ("every_shot", 2, 2000),
+    ] {
+        let dir = scratch();
+        let out = dir.path().join("out");
+        let v = idle_scenario(4, q, r_count, shots, redrawn);
+        simulate_into(&write_json(dir.path(), "s.json", &v), &out);
+        let truth = hdf5::File::open(out.join("truth.h5")).unwrap();
+        assert_eq!(
+            truth
+                .attr("flip_probability")
+                .unwrap()
+                .read_scalar::<f64>()
+                .unwrap(),
+            q
+        );
+        let g = truth.group("preparation").unwrap();
+        assert_eq!(
+            g.attr("flip_probability")
+                .unwrap()
+                .read_scalar::<f64>()
+                .unwrap(),
+            q
+        );
+        let real = g.dataset("realization").unwrap().read_raw::<i64>().unwrap();
+        let counts = g.dataset("shots").unwrap().read_raw::<u64>().unwrap();
+        let flipped = g.dataset("flipped").unwrap().read_2d::<u8>().unwrap();
+        assert_eq!(flipped.ncols(), 4);
+        let exact_z0 = read_f64(&truth, "observables/Z_0/exact");
+        let exact_m = read_f64(&truth, "observables/magnetisation/exact");
+        let run = quassay::inputs::run_file::read_run(&out.join("run.h5")).unwrap();
+        let z0 = run.observables.iter().find(|o| o.name == "Z_0").unwrap();
+        // The ideal trace is the error-free one.
+        assert_eq!(z0.ideal.as_deref(), Some(&[1.0, 1.0][..]));
+        let mut pooled = 0.0;
+        for r in 0..r_count as usize {
+            let rows: Vec<usize> = (0..real.len()).filter(|&k| real[k] == r as i64).collect();
+            assert_eq!(
+                rows.iter().map(|&k| counts[k]).sum::<u64>(),
+                shots,
+                "{redrawn} r {r}"
+            );
+            if redrawn == "every_shot" {
+                assert_eq!(rows.len() as u64, shots);
+            } else {
+                // Distinct patterns, in increasing order of the mask.
+                let masks: Vec<u32> = rows
+                    .iter()
+                    .map(|&k| (0..4).map(|i| (flipped[[k, i]] as u32) << i).sum())
+                    .collect();
+                assert!(masks.windows(2).all(|w| w[0] < w[1]), "{masks:?}");
+            }
+            let (mut sum_z0, mut sum_m) = (0i64, 0i64);
+            for &k in &rows {
+                let n_flip: i64 = (0..4).map(|i| flipped[[k, i]] as i64).sum();
+                sum_z0 += counts[k] as i64 * (1 - 2 * flipped[[k, 0]] as i64);
+                sum_m += counts[k] as i64 * (4 - 2 * n_flip); // 4 × magnetisation
+            }
+            let want_z0 = sum_z0 as f64 / shots as f64;
+            let want_m = sum_m as f64 / 4.0 / shots as f64;
+            for k in 0..2 {
+                // H = 0: the same at t = 0 and t = 1.
+                assert_eq!(exact_z0[r * 2 + k], want_z0, "{redrawn} r {r} t {k}");
+                assert_eq!(exact_m[r * 2 + k], want_m, "{redrawn} r {r} t {k}");
+                // Every shot's outcome is fixed by its pattern, so the shot mean is the
+                // mixture too (2k/S − 1 against (2k − S)/S: equal to rounding).
+                assert!((z0.values[[r, k]] - want_z0).abs() < 1e-15);
+            }
+            pooled += z0.values[[r, 0]] * shots as f64;
+        }
+        // Against 1 − 2q: the pooled mean of R·S independent ±1 outcomes has standard error
+        // 2·√(q(1 − q)/(R·S)); 5 of them (a correct simulator fails with probability < 1e-6).
+        let n_total = (r_count * shots) as f64;
+        let mean = pooled / n_total;
+        let se = 2.0 * (q * (1.0 - q) / n_total).sqrt();
+        assert!(
+            (mean - (1.0 - 2.0 * q)).abs() < 5.0 * se,
+            "{redrawn}: {mean}"
+        );
+    }
+}
+
+#[test]
+fn a_flip_probability_gives_bit_identical_output_for_a_seed_and_any_thread_count() {
+    let mut v = chain_scenario();
+    v["preparation_error"] = json!({"flip_probability": 0.05});
+    let dir = scratch();
+    let sc = write_json(dir.path(), "s.json", &v);
+    for (out, threads) in [("a", "1"), ("b", "2")] {
+        quassay()
+            .env("RAYON_NUM_THREADS", threads)
+            .arg("simulate")
+            .arg(&sc)
+            .arg("-o")
+            .arg(dir.path().join(out))
+            .assert()
+            .success();
+    }
+    for f in ["run.h5", "truth.h5", "noise.json"] {
+        assert_eq!(
+            std::fs::read(dir.path().join("a").join(f)).unwrap(),
+            std::fs::read(dir.path().join("b").join(f)).unwrap(),
+            "{f}"
+        );
+    }
+    // The flips change the data (Néel state: a flip at t = 0 moves the staggered
+    // magnetisation off 1), not the ideal trace.
+    let plain = dir.path().join("plain");
+    simulate_into(
+        &write_json(dir.path(), "plain.json", &chain_scenario()),
+        &plain,
+    );
+    let a = quassay::inputs::run_file::read_run(&dir.path().join("a/run.h5")).unwrap();
+    let p = quassay::inputs::run_file::read_run(&plain.join("run.h5")).unwrap();
+    let stag = |r: &quassay::model::Run| {
+        r.observables
+            .iter()
+            .find(|o| o.name == "staggered_z")
+            .unwrap()
+            .clone()
+    };
+    assert_eq!(stag(&a).ideal, stag(&p).ideal);
+    // (Six terms ±1/6 add up to 1 within an ulp; one flip costs 2/6, expected drop 2q = 0.1.)
+    assert!(stag(&p)
+        .values
+        .column(0)
+        .iter()
+        .all(|&x| (x - 1.0).abs() < 1e-15));
+    assert!(stag(&a).values.column(0).iter().all(|&x| x < 0.99));
+    assert!(a
+        .description
+        .as_deref()
+        .unwrap()
+        .contains("probability 0.05"));
+}
+
+#[test]
+fn bad_flip_probabilities_exit_1_with_the_json_pointer_and_write_nothing() {
+    for bad in [
+        json!({"flip_probability": 1.5}),
+        json!({"flip_probability": -0.1}),
+    ] {
+        let mut v = chain_scenario();
+        v["preparation_error"] = bad;
+        assert_rejected(&v, "/preparation_error/flip_probability");
+    }
+    let mut v = chain_scenario();
+    v["preparation_error"] = json!({"flip_probability": 0.1, "per_site": [0.1]});
+    assert_rejected(&v, "/preparation_error/per_site");
+}
+
+#[test]
+fn the_schema_knows_the_preparation_error() {
+    let text =
+        std::fs::read_to_string(crate::util::repo().join("schemas/scenario.schema.json")).unwrap();
+    let schema: Value = serde_json::from_str(&text).unwrap();
+    let validator = jsonschema::draft202012::new(&schema).unwrap();
+    let mut v = chain_scenario();
+    v["preparation_error"] = json!({"flip_probability": 0.05});
+    assert!(validator.is_valid(&v));
+    for bad in [
+        json!({"flip_probability": 1.5}),
+        json!({"flip_probability": -0.1}),
+        json!({"flip_probability": 0.1, "per_site": [0.1]}),
+        json!({}),
+    ] {
+        v["preparation_error"] = bad.clone();
+        assert!(!validator.is_valid(&v), "{bad}");
+    }
+}
