@@ -894,7 +894,7 @@ mod tests {
     fn walk_sums_count_paths() {
         let lattice = Lattice::regular(Geometry::Chain, &[8], Boundary::Open).unwrap();
         let inst = site_instances(8);
-        let graph = WalkGraph::new(&lattice, &vec![1.5; 7], 1, &inst).unwrap();
+        let graph = WalkGraph::new(&lattice, &[1.5; 7], 1, &inst).unwrap();
         let walks = Walks::new(&graph, &[0], &inst, 1.0).unwrap();
         let j_of = |site: usize| {
             walks
@@ -922,9 +922,9 @@ mod tests {
         let times = [0.0, 1.0, 10.0, 20.0];
         let e = Exposure::new(&graph, &[2000], &inst, &times).unwrap();
         assert!(e.order() > 300, "order {}", e.order());
-        for k in 0..times.len() {
+        for (k, &t) in times.iter().enumerate() {
             for &v in e.at(k) {
-                assert!(v.is_finite() && v >= 0.0 && v <= times[k]);
+                assert!(v.is_finite() && v >= 0.0 && v <= t);
             }
         }
         // The source 10 sites away is inside the light cone at t = 20: exposed almost all the time.
