@@ -84,8 +84,9 @@ impl Case {
         self.dir.path().join(name)
     }
 
-    /// `quassay certify run.h5 --noise noise.json ARGS`: must succeed, and the certificate it
-    /// wrote (`-o` or the default `run.cert.json`) must pass [`certified`]; returns stdout.
+    /// `quassay certify run.h5 --noise noise.json ARGS`: must write a certificate (`-o` or the
+    /// default `run.cert.json`) that passes [`certified`], and exit 0 if its verdict is
+    /// `consistent` (or `not_tested`), 3 if it is `inconsistent` (formats.md); returns stdout.
     fn certify(&self, args: &[&str]) -> String {
         let out = quassay()
             .arg("certify")
@@ -93,14 +94,21 @@ impl Case {
             .arg("--noise")
             .arg(self.path("noise.json"))
             .args(args)
-            .assert()
-            .code(0);
+            .output()
+            .unwrap();
         let written = match args.iter().position(|a| *a == "-o") {
             Some(i) => PathBuf::from(args[i + 1]),
             None => self.path("run.cert.json"),
         };
-        certified(&written);
-        String::from_utf8(out.get_output().stdout.clone()).unwrap()
+        let cert = certified(&written);
+        let expected = match cert["body"]["verdict"]["status"].as_str() {
+            Some("inconsistent") => 3,
+            Some("consistent" | "not_tested") => 0,
+            other => panic!("unknown verdict {other:?}"),
+        };
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(expected), "{stderr}");
+        String::from_utf8(out.stdout).unwrap()
     }
 
     /// Certifies into `name` (in the folder) and returns the checked certificate.
@@ -351,7 +359,7 @@ fn verify_refuses_recorded_paths_that_leave_the_certificates_folder() {
         .arg("--noise")
         .arg(sub.join("noise.json"))
         .assert()
-        .code(0);
+        .code(3); // the fixture's random values contradict any record: see the verdict test
     let path = sub.join("run.cert.json");
     let original = certified(&path);
     let absolute = sub.join("run.h5").canonicalize().unwrap();
@@ -701,4 +709,58 @@ fn verify_refuses_a_file_that_is_not_a_certificate_with_exit_1() {
         err.contains("/format") && err.contains("not a quassay certificate"),
         "{err}"
     );
+}
+
+/// The h5py fixture holds random numbers (NumPy's generator), not a physical run: their spread
+/// between realizations at t = 0, where no noise has acted, is far above the shot noise its
+/// counts and standard errors allow. certify must write the certificate all the same, exit 3,
+/// put the verdict into every claim, and flag t = 0 as a preparation or measurement problem.
+#[test]
+fn data_that_contradict_the_record_exit_3_and_the_claim_says_so() {
+    let c = Case::new("chain-detuning.json");
+    let stdout = c.certify(&[]);
+    let cert = certified(&c.path("run.cert.json"));
+    let v = &cert["body"]["verdict"];
+    assert_eq!(v["status"], "inconsistent");
+    let failures = v["failures"].as_array().unwrap();
+    assert!(failures
+        .iter()
+        .any(|f| f["time_index"] == 0 && f["category"] == "preparation_or_measurement"));
+    for f in failures {
+        assert!(f["adjusted_p_value"].as_f64().unwrap() <= 0.01, "{f}");
+    }
+    for cl in cert["body"]["claim"]["per_observable"].as_array().unwrap() {
+        assert!(cl["text"]
+            .as_str()
+            .unwrap()
+            .starts_with("The data contradict the noise record"));
+    }
+    assert!(stdout.contains("consistency of the data with the noise record: inconsistent"));
+    assert!(
+        stdout.contains("Z_1: fails from t = 0 us; implied noise scale"),
+        "{stdout}"
+    );
+}
+
+/// The bundled example (simulated with the declared noise) passes its checks: exit 0.
+#[test]
+fn the_bundled_chain_example_is_consistent_with_its_record() {
+    let dir = scratch();
+    for f in ["run.h5", "noise.json"] {
+        std::fs::copy(
+            crate::util::repo().join("example_runs/chain12").join(f),
+            dir.path().join(f),
+        )
+        .unwrap();
+    }
+    quassay()
+        .arg("certify")
+        .arg(dir.path().join("run.h5"))
+        .arg("--noise")
+        .arg(dir.path().join("noise.json"))
+        .assert()
+        .code(0);
+    let cert = certified(&dir.path().join("run.cert.json"));
+    assert_eq!(cert["body"]["verdict"]["status"], "consistent");
+    assert!(cert["body"]["verdict"]["tests"].as_u64().unwrap() > 100);
 }

@@ -76,13 +76,19 @@ pub fn build_body(
     let Loaded { run, record, model } = loaded;
     let mut run_file = inputs.run.to_json();
     run_file["datasets"] = Value::Array(inputs.datasets.iter().map(|d| d.to_json()).collect());
+    let inconsistent = verdict["status"] == "inconsistent";
     let claims: Vec<Value> = run
         .observables
         .iter()
         .map(|o| {
             json!({
                 "observable": o.name,
-                "text": claim::claim_sentence(&o.name, options.confidence, options.simultaneity),
+                "text": claim::claim_sentence(
+                    &o.name,
+                    options.confidence,
+                    options.simultaneity,
+                    inconsistent,
+                ),
             })
         })
         .collect();

@@ -14,12 +14,14 @@ use std::collections::HashMap;
 use std::path::Path;
 use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
 
-use serde_json::{json, Value};
+use serde_json::Value;
 
 use super::body::{build_body, CertifyOptions, RecordedInputs};
 use super::hash::{encode_f64, encode_i64, ContentHasher, ContentKind};
 use super::record::{header_digests, small_digests, streamed_paths, DatasetDigest, FileRecord};
+use crate::bounds::global::SourceData;
 use crate::bounds::run_bounds::{ObservableBounds, RunBounds, RunEvaluator};
+use crate::checks::report::{CheckPlan, ChecksReport, ObservableChecks};
 use crate::error::{Error, InputKind, Result};
 use crate::inputs::noise_record::read_noise_record;
 use crate::inputs::run_file::{open_run, ContentSink, NoContent, RunOutline};
@@ -70,6 +72,8 @@ fn expand(
 pub struct Computed {
     pub loaded: Loaded,
     pub bounds: RunBounds,
+    /// The consistency checks of the data against the record (bounds.md §6).
+    pub checks: ChecksReport,
     pub body: Value,
 }
 
@@ -99,7 +103,7 @@ pub fn compute_body(
         drop(sink);
         let content = hasher.join().unwrap_or_default();
         let file = file_hash.join();
-        let (loaded, bounds, small) = streamed?;
+        let (loaded, bounds, checks, small) = streamed?;
         let run_record = match file {
             Ok(r) => r?,
             Err(panic) => std::panic::resume_unwind(panic),
@@ -110,18 +114,18 @@ pub fn compute_body(
             datasets,
             noise_record: FileRecord::of(noise_path, recorded_noise)?,
         };
-        let checks = json!({
-            "status": "not_performed",
-            "reason": "this version of quassay does not yet test the data against the noise record (bounds.md section 6)",
-        });
-        let verdict = json!({
-            "status": "not_tested",
-            "text": "The bounds were computed; whether the data are consistent with the noise record was not tested.",
-        });
-        let body = build_body(&loaded, &bounds, &inputs, options, checks, verdict);
+        let body = build_body(
+            &loaded,
+            &bounds,
+            &inputs,
+            options,
+            checks.to_json(),
+            checks.verdict_json(),
+        );
         Ok(Computed {
             loaded,
             bounds,
+            checks,
             body,
         })
     })
@@ -130,14 +134,15 @@ pub fn compute_body(
 /// The small digests of each observable (`ideal`, terms), in observable order.
 type SmallDigests = Vec<Vec<DatasetDigest>>;
 
-/// Reads the run once: checks, bounds and (through `sink`) the content of every R × T
-/// dataset.
+/// Reads the run once: layout checks, bounds, consistency checks and (through `sink`) the
+/// content of every R × T dataset. One observable is held whole at a time (the consistency
+/// checks need the spread of its realizations), then dropped.
 fn stream_run(
     run_path: &Path,
     noise_path: &Path,
     options: &CertifyOptions,
     sink: &mut dyn ContentSink,
-) -> Result<(Loaded, RunBounds, SmallDigests)> {
+) -> Result<(Loaded, RunBounds, ChecksReport, SmallDigests)> {
     let stream = open_run(run_path)?;
     let noise = read_noise_record(noise_path);
     let header = stream.outline().cloned();
@@ -170,26 +175,52 @@ fn stream_run(
         }
         None => None,
     };
+    let n_with_ideal = stream.n_with_ideal();
+    let sources: Vec<SourceData> = match &model {
+        Some(Ok(m)) => m.instances.iter().map(SourceData::from_instance).collect(),
+        _ => Vec::new(),
+    };
+    let times: Vec<f64> = header.as_ref().map_or_else(Vec::new, |h| h.times.clone());
+    let redrawn = match &model {
+        Some(Ok(m)) => Some(m.redrawn),
+        _ => None,
+    };
+    let mut plan: Option<CheckPlan> = None;
+    let mut checked: Vec<ObservableChecks> = Vec::with_capacity(n_observables);
     let mut observables: Vec<ObservableBounds> = Vec::with_capacity(n_observables);
     let mut small = Vec::with_capacity(n_observables);
-    let run = stream.read_observables(sink, |o| {
-        if let Some(ev) = ev.as_mut() {
-            observables.push(ev.observable(&o.outline.name, o.outline.spread(), &o.sums));
+    let run = stream.read_observables_whole(sink, |o| {
+        if let (Some(ev), Some(redrawn), Some(whole)) = (ev.as_mut(), redrawn, o.kept.as_ref()) {
+            let b = ev.observable(&o.outline.name, o.outline.spread(), &o.sums);
+            let plan = plan.get_or_insert_with(|| {
+                CheckPlan::new(
+                    &times,
+                    &sources,
+                    redrawn,
+                    whole.values.nrows(),
+                    n_observables,
+                    n_with_ideal,
+                    options.check_level,
+                )
+            });
+            checked.push(plan.observable(whole, &b.mean, &b.points, None));
+            observables.push(b);
         }
         small.push(small_digests(&o.outline));
     })?;
     let bounds = ev.map(|ev| ev.finish(observables));
+    let checks = plan.map(|p| p.finish(checked));
     let record = noise?;
     let model = match model {
         Some(m) => m?,
         None => expand(&record, &run, run_path, noise_path)?,
     };
-    let Some(bounds) = bounds else {
+    let (Some(bounds), Some(checks)) = (bounds, checks) else {
         return Err(Error::Options(
             "the bounds could not be prepared; please report this as a bug in quassay".into(),
         ));
     };
-    Ok((Loaded { run, record, model }, bounds, small))
+    Ok((Loaded { run, record, model }, bounds, checks, small))
 }
 
 /// The digests in the documented order (see [`super::record::dataset_digests`]): the run's

@@ -5,8 +5,26 @@
 
 use crate::bounds::confidence::Simultaneity;
 
-/// The claim for one observable, one plain sentence.
-pub fn claim_sentence(observable: &str, confidence: f64, simultaneity: Simultaneity) -> String {
+/// The claim for one observable, one plain sentence; when the data contradict the noise record
+/// (`inconsistent` is true) the sentence says so first, since the claim rests on that record.
+pub fn claim_sentence(
+    observable: &str,
+    confidence: f64,
+    simultaneity: Simultaneity,
+    inconsistent: bool,
+) -> String {
+    let claim = claim_only(observable, confidence, simultaneity);
+    if inconsistent {
+        format!(
+            "The data contradict the noise record (see the verdict), so the following claim is \
+             not supported by this dataset: {claim}"
+        )
+    } else {
+        claim
+    }
+}
+
+fn claim_only(observable: &str, confidence: f64, simultaneity: Simultaneity) -> String {
     match simultaneity {
         Simultaneity::Simultaneous => format!(
             "If the noise record describes every perturbation of the hardware (see the assumptions), \
@@ -52,12 +70,15 @@ mod tests {
 
     #[test]
     fn the_claim_names_the_observable_the_probability_and_the_scope() {
-        let s = claim_sentence("Z_5", 0.95, Simultaneity::Simultaneous);
+        let s = claim_sentence("Z_5", 0.95, Simultaneity::Simultaneous, false);
         assert!(s.contains("with probability at least 0.95, at every recorded time"));
         assert!(s.contains("ideal-model value of Z_5 lies within the reported interval"));
-        let p = claim_sentence("Z_5", 0.9, Simultaneity::Pointwise);
+        let p = claim_sentence("Z_5", 0.9, Simultaneity::Pointwise, false);
         assert!(p.contains("at each recorded time separately, with probability at least 0.9,"));
         assert!(p.contains("not simultaneous"));
+        let bad = claim_sentence("Z_5", 0.95, Simultaneity::Simultaneous, true);
+        assert!(bad.starts_with("The data contradict the noise record"));
+        assert!(bad.ends_with(&s));
     }
 
     #[test]

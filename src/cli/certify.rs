@@ -82,7 +82,49 @@ pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
         summary_text(&output, &cert, &computed, &notes)
     };
     print_stdout(&text)?;
-    Ok(Outcome::Success)
+    // Exit 3 when the data contradict the noise record; the certificate is written all the
+    // same, and its claim says so.
+    Ok(if computed.checks.consistent() {
+        Outcome::Success
+    } else {
+        Outcome::Negative
+    })
+}
+
+/// The verdict's status word (`consistent`, `inconsistent` or `not_tested`).
+fn verdict_status(cert: &Certificate) -> String {
+    cert.body["verdict"]["status"]
+        .as_str()
+        .unwrap_or("unknown")
+        .to_string()
+}
+
+/// One line per observable with a failed check: earliest failing time, implied noise scale.
+fn failure_lines(c: &Computed) -> Vec<String> {
+    let unit = c.loaded.run.time_unit.as_str();
+    c.checks
+        .observables
+        .iter()
+        .filter_map(|o| {
+            let k = o.earliest_failure?;
+            let t = c.loaded.run.times.get(k).copied().unwrap_or(f64::NAN);
+            let scale = match o.implied_scale.value {
+                Some(v) => format!("implied noise scale {}", show(v)),
+                None => format!(
+                    "implied noise scale not available ({})",
+                    o.implied_scale
+                        .reason
+                        .as_deref()
+                        .unwrap_or("no noise variance predicted")
+                ),
+            };
+            Some(format!(
+                "  {}: fails from t = {} {unit}; {scale}",
+                o.name,
+                show(t)
+            ))
+        })
+        .collect()
 }
 
 /// One row of the summary: the observable's worst time and the numbers there.
@@ -227,7 +269,17 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
         "\nE_avg: error of the averaged trace from the noise; E_shot: from the finite shots; \
          worst case: no cancellation between sources; gain: worst case / E_avg.\n",
     );
-    s.push_str("consistency of the data with the noise record: not tested in this version\n");
+    let status = verdict_status(cert);
+    s.push_str(&format!(
+        "consistency of the data with the noise record: {status}\n"
+    ));
+    if let Some(text) = cert.body["verdict"]["text"].as_str() {
+        s.push_str(&format!("  {text}\n"));
+    }
+    for line in failure_lines(c) {
+        s.push_str(&line);
+        s.push('\n');
+    }
     for n in notes {
         s.push_str(&format!("note: {n}\n"));
     }
@@ -255,6 +307,14 @@ fn summary_json(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
         "digest": cert.digest,
         "time_unit": c.loaded.run.time_unit.as_str(),
         "verdict": cert.body["verdict"]["status"],
+        "failing_observables": c.checks.observables.iter().filter_map(|o| {
+            let k = o.earliest_failure?;
+            Some(json!({
+                "name": o.name,
+                "earliest_failing_time": num(c.loaded.run.times.get(k).copied().unwrap_or(f64::NAN)),
+                "implied_noise_scale": o.implied_scale.value.map_or(Value::Null, num),
+            }))
+        }).collect::<Vec<_>>(),
         "observables": observables,
         "fidelity_last_time": {
             "f_low": last.map_or(Value::Null, |f| num(f.f_low)),

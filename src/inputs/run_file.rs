@@ -239,6 +239,36 @@ impl RunStream {
         }
     }
 
+    /// As [`RunStream::read_observables`], but each observable is handed to `visit` whole
+    /// (`kept` is `Some`), one at a time, and dropped after the visit: memory holds one
+    /// observable's R × T datasets, not the run's.
+    pub fn read_observables_whole(
+        self,
+        sink: &mut dyn ContentSink,
+        mut visit: impl FnMut(ObservableRead),
+    ) -> Result<RunOutline> {
+        let (outline, inspection) = self.finish(true, sink, &mut visit);
+        match outline {
+            Some(o) if inspection.problems.is_empty() => Ok(o),
+            _ => Err(Error::Input {
+                kind: InputKind::Run,
+                file: inspection.file,
+                problems: inspection.problems,
+            }),
+        }
+    }
+
+    /// How many of the listed observables have an `ideal` dataset (a cheap look at the links,
+    /// before anything is read).
+    pub fn n_with_ideal(&self) -> usize {
+        self.listing.as_ref().map_or(0, |(g, names)| {
+            names
+                .iter()
+                .filter(|n| g.link_exists(&format!("{n}/ideal")))
+                .count()
+        })
+    }
+
     /// Reads the observables; the outline is `Some` only when the whole file is sound.
     fn finish(
         mut self,
