@@ -68,10 +68,14 @@ pub fn run(args: &SimulateArgs) -> Result<Outcome> {
         st.evolutions, st.products, st.max_truncation_bound, st.max_norm_drift, st.seconds
     );
     if let Some(p) = scenario.preparation_error {
+        let what = if scenario.true_noise.redrawn == crate::model::Redrawn::EveryShot {
+            "shots started with at least one flip"
+        } else {
+            "distinct flip patterns evolved (over all realizations)"
+        };
         let _ = writeln!(
             out,
-            "preparation error: every site flipped with probability {} per shot; {} distinct \
-             flip patterns evolved",
+            "preparation error: every site flipped with probability {} per shot; {} {what}",
             p.flip_probability, st.flip_patterns
         );
     }

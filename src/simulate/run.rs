@@ -21,7 +21,9 @@
 //! pattern's shots from it (per time, per observable). Shot means pool all S shots; the exact
 //! value is the mixture `Σ_p N_p ⟨O⟩_p / S`. With noise redrawn every shot, the shot's pattern
 //! is drawn after its noise (one uniform per site). Without the key, or with q = 0, no number
-//! is drawn for it and the output is the same as without the feature.
+//! is drawn for it and the output is the same as without the feature. All realizations draw
+//! their patterns before any evolution, so that [`try_simulate`] can refuse a scenario that
+//! would need more than [`MAX_PATTERN_EVOLUTIONS`] evolutions before spending them.
 
 use std::collections::BTreeMap;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
