@@ -5,5 +5,6 @@ mod util;
 mod bounds_exact;
 mod certify;
 mod noise_record;
+mod rehearsal;
 mod run_file;
 mod simulate;
