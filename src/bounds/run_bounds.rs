@@ -1,5 +1,12 @@
 //! Every bound of a run at once: each observable at each recorded time, and the fidelity bound
-//! at each time (bounds.md §3–§4). Pure: it takes the checked models and returns numbers.
+//! at each time (bounds.md §3–§5). Pure: it takes the checked models and returns numbers.
+//!
+//! Per observable and time the point reports one *statement*: the global one (§3), or the
+//! light-cone one (§5) when it is smaller ([`super::local::combine`]). The walk graph is built
+//! once per run; the exposure times of a support are computed once and reused by every
+//! observable with the same support (within a memory budget, see [`EXPOSURE_BUDGET`]).
+//! Observables that are sums of local terms use the support of the whole observable (the union
+//! of the terms' supports); per-term sensitivities are not used yet.
 //!
 //! The order of operations is fixed (observables in name order, times in order, realizations
 //! in order), so the numbers, and hence the certificate, reproduce to the bit.
@@ -10,7 +17,67 @@ use super::global::{
     evaluate_point, shot_hoeffding, shot_hoeffding_from_sum, shot_normal_from_sum, PointBounds,
     PointInputs, ShotData, SourceData,
 };
-use crate::model::{NoiseModel, Observable, Run, Shots};
+use super::light_cone::{Exposure, Unavailable, WalkGraph};
+use super::local::{combine, local_bounds_with, LocalInputs, LocalTerms, Statement};
+use crate::model::{Hamiltonian, Lattice, NoiseModel, Observable, Run, Shots, TimeUnit};
+
+/// Largest number of exposure values (region sources × times, summed over the supports kept)
+/// held for reuse: 2^24 values, 128 MiB. Past it the kept exposures are dropped before a new
+/// one is stored; a dropped one is recomputed if needed, with the same bits.
+pub const EXPOSURE_BUDGET: usize = 1 << 24;
+
+/// What the light-cone bounds need of a run besides the noise model.
+#[derive(Debug, Clone, Copy)]
+pub struct RunGeometry<'a> {
+    pub lattice: &'a Lattice,
+    pub hamiltonian: &'a Hamiltonian,
+    /// The run's time unit (the bond norms are converted to radians per this unit).
+    pub time_unit: TimeUnit,
+}
+
+/// Whether an observable got light-cone bounds, and why not when it did not.
+#[derive(Debug, Clone, PartialEq)]
+pub enum LightCone {
+    /// Computed, with the walk order `K` and the number of sources in the computed region.
+    Computed {
+        order: usize,
+        region_sources: usize,
+        /// The observable is a sum of local terms; the support of the whole was used.
+        whole_support_of_terms: bool,
+    },
+    /// Not available: the reason (a [`Unavailable`] text).
+    Unavailable(String),
+}
+
+impl LightCone {
+    /// The sentence the certificate records.
+    pub fn describe(&self) -> String {
+        match self {
+            LightCone::Computed {
+                order,
+                region_sources,
+                whole_support_of_terms,
+            } => {
+                let mut s = format!(
+                    "computed (Lieb-Robinson walk sums to order {order}, {region_sources} noise \
+                     instances in the computed region, the others bounded by the tail); at each \
+                     time the smaller statement is used"
+                );
+                if *whole_support_of_terms {
+                    s.push_str(
+                        "; the observable is a sum of local terms: the light cone of its whole \
+                         support (the union of the terms' supports) is used, not term by term, \
+                         so an observable spread over the whole system gains little",
+                    );
+                }
+                s
+            }
+            LightCone::Unavailable(why) => {
+                format!("not available, the global statement is used at every time: {why}")
+            }
+        }
+    }
+}
 
 /// The bounds of one observable over the recorded times.
 #[derive(Debug, Clone, PartialEq)]
@@ -25,6 +92,14 @@ pub struct ObservableBounds {
     pub points: Vec<PointBounds>,
     /// Whether the shot term is the normal approximation from standard errors.
     pub shot_approximate: bool,
+    /// Per time, the statement `points` reports.
+    pub statements: Vec<Statement>,
+    /// Whether the light-cone statement was computed.
+    pub light_cone: LightCone,
+    /// Per time, `E_avg` of the global statement (equal to `points[k].e_avg` where it is used).
+    pub e_avg_global: Vec<f64>,
+    /// Per time, the light-cone terms, when computed.
+    pub local: Option<Vec<LocalTerms>>,
 }
 
 impl ObservableBounds {
@@ -32,6 +107,14 @@ impl ObservableBounds {
     pub fn interval(&self, k: usize) -> [f64; 2] {
         let h = self.points[k].half_width;
         [self.mean[k] - h, self.mean[k] + h]
+    }
+
+    /// Per time, the light-cone Efron–Stein variance `Σ δ_i² σ_i² e_i²` of one draw (before the
+    /// realization rule), when computed; see [`LocalTerms::v_noise`].
+    pub fn local_v_noise(&self) -> Option<Vec<f64>> {
+        self.local
+            .as_ref()
+            .map(|l| l.iter().map(|x| x.v_noise).collect())
     }
 }
 
@@ -48,6 +131,32 @@ pub struct RunBounds {
     pub fidelity_p: f64,
     /// The fidelity lower bound per time.
     pub fidelity: Vec<FidelityBound>,
+}
+
+impl RunBounds {
+    /// `(light-cone points, all points)` over every observable and time.
+    pub fn statement_counts(&self) -> (usize, usize) {
+        let mut local = 0;
+        let mut all = 0;
+        for o in &self.observables {
+            all += o.statements.len();
+            local += o
+                .statements
+                .iter()
+                .filter(|s| **s == Statement::LightCone)
+                .count();
+        }
+        (local, all)
+    }
+
+    /// Which statement the points use, in words (for the summary).
+    pub fn statement_summary(&self) -> String {
+        match self.statement_counts() {
+            (0, _) => "global statement at every time".to_string(),
+            (l, a) if l == a => "light-cone statement at every time".to_string(),
+            (l, a) => format!("light-cone statement at {l} of {a} points, global elsewhere"),
+        }
+    }
 }
 
 /// What the bounds need of one observable's data: per time, the sum of the values over the
@@ -123,13 +232,20 @@ pub struct RunEvaluator<'a> {
     sources: Vec<SourceData>,
     /// Noise terms per time, by the bits of `s_O` (shot terms not yet filled in).
     noise_terms: Vec<(u64, Vec<PointBounds>)>,
+    /// The run's walk graph, or why there is none (then every observable is global).
+    graph: Result<WalkGraph<'a>, Unavailable>,
+    /// Exposures kept for reuse, by support, and the number of values they hold.
+    exposures: Vec<(Vec<usize>, Result<Exposure, Unavailable>)>,
+    exposure_values: usize,
 }
 
 impl<'a> RunEvaluator<'a> {
-    /// Splits the confidence over `n_observables` observables at `times`.
+    /// Splits the confidence over `n_observables` observables at `times`, and builds the walk
+    /// graph of the run's lattice (once per run) for the light-cone statement.
     pub fn new(
         times: &'a [f64],
         noise: &'a NoiseModel,
+        geometry: RunGeometry<'a>,
         n_observables: usize,
         confidence_level: f64,
         simultaneity: Simultaneity,
@@ -146,6 +262,16 @@ impl<'a> RunEvaluator<'a> {
             .iter()
             .map(SourceData::from_instance)
             .collect();
+        let lattice = geometry.lattice;
+        let bond_norms = geometry
+            .hamiltonian
+            .bond_norms_angular(lattice.n_bonds(), geometry.time_unit);
+        let graph = WalkGraph::new(
+            lattice,
+            &bond_norms,
+            geometry.hamiltonian.interaction_range,
+            &noise.instances,
+        );
         Ok(RunEvaluator {
             times,
             noise,
@@ -153,7 +279,73 @@ impl<'a> RunEvaluator<'a> {
             split,
             sources,
             noise_terms: Vec::new(),
+            graph,
+            exposures: Vec::new(),
+            exposure_values: 0,
         })
+    }
+
+    /// The index in `self.exposures` of the exposure of `support` (computed if not kept).
+    fn exposure(&mut self, support: &[usize]) -> usize {
+        if let Some(i) = self.exposures.iter().position(|(s, _)| s == support) {
+            return i;
+        }
+        let e = match &self.graph {
+            Ok(g) => Exposure::new(g, support, &self.noise.instances, self.times),
+            Err(why) => Err(why.clone()),
+        };
+        let size = e
+            .as_ref()
+            .map_or(0, |e| e.region().len() * self.times.len());
+        if self.exposure_values + size > EXPOSURE_BUDGET {
+            self.exposures.clear();
+            self.exposure_values = 0;
+        }
+        self.exposure_values += size;
+        self.exposures.push((support.to_vec(), e));
+        self.exposures.len() - 1
+    }
+
+    /// The light-cone terms of an observable at every time (`None` when unavailable) and the
+    /// status to record.
+    fn local_terms(
+        &mut self,
+        support: &[usize],
+        spread: f64,
+        has_terms: bool,
+        realizations: usize,
+    ) -> (Option<Vec<LocalTerms>>, LightCone) {
+        let unavailable = |why: &Unavailable| (None, LightCone::Unavailable(why.to_string()));
+        if support.is_empty() {
+            return unavailable(&Unavailable::GlobalObservable);
+        }
+        if let Err(why) = &self.graph {
+            return unavailable(why);
+        }
+        let i = self.exposure(support);
+        let (graph, exposure) = match (&self.graph, &self.exposures[i].1) {
+            (Ok(g), Ok(e)) => (g, e),
+            (Err(why), _) | (_, Err(why)) => return unavailable(why),
+        };
+        let inputs = LocalInputs {
+            graph,
+            support,
+            s_o: spread,
+            instances: &self.noise.instances,
+            sources: &self.sources,
+            times: self.times,
+            redrawn: self.noise.redrawn,
+            realizations,
+            p: self.split.p_point,
+            p_single: self.split.p_single_point,
+        };
+        let terms = local_bounds_with(&inputs, exposure);
+        let status = LightCone::Computed {
+            order: exposure.order(),
+            region_sources: exposure.region().len(),
+            whole_support_of_terms: has_terms,
+        };
+        (Some(terms), status)
     }
 
     /// The noise terms at every time for spread `s_o` and `r` realizations.
@@ -188,11 +380,15 @@ impl<'a> RunEvaluator<'a> {
         &self.noise_terms[i].1
     }
 
-    /// The bounds of one observable of spread `spread` from its sums.
+    /// The bounds of one observable of spread `spread` on `support` (sorted; empty: global)
+    /// from its sums; `has_terms` says whether it is a sum of local terms (only the recorded
+    /// reason depends on it).
     pub fn observable(
         &mut self,
         name: &str,
         spread: f64,
+        support: &[usize],
+        has_terms: bool,
         sums: &ObservableSums,
     ) -> ObservableBounds {
         let r = sums.realizations;
@@ -209,7 +405,10 @@ impl<'a> RunEvaluator<'a> {
             ShotSums::Uniform(s) => shot_hoeffding(spread, &vec![s; r], alpha),
             _ => f64::NAN,
         };
+        let (local, light_cone) = self.local_terms(support, spread, has_terms, r);
         let noise = self.noise_terms(spread, r);
+        let e_avg_global = noise.iter().map(|p| p.e_avg).collect();
+        let mut statements = Vec::with_capacity(noise.len());
         let points = noise
             .iter()
             .enumerate()
@@ -221,12 +420,15 @@ impl<'a> RunEvaluator<'a> {
                     }
                     ShotSums::SquaredErrors(sq) => (shot_normal_from_sum(r, sq[k], alpha), true),
                 };
-                PointBounds {
+                let global = PointBounds {
                     e_shot,
                     shot_approximate: approximate,
                     half_width: p.e_avg + e_shot,
                     ..*p
-                }
+                };
+                let (point, statement) = combine(&global, local.as_ref().and_then(|l| l.get(k)));
+                statements.push(statement);
+                point
             })
             .collect();
         ObservableBounds {
@@ -235,6 +437,10 @@ impl<'a> RunEvaluator<'a> {
             mean,
             points,
             shot_approximate: matches!(sums.shots, ShotSums::SquaredErrors(_)),
+            statements,
+            light_cone,
+            e_avg_global,
+            local,
         }
     }
 
@@ -267,9 +473,15 @@ pub fn evaluate_run(
     confidence_level: f64,
     simultaneity: Simultaneity,
 ) -> Result<RunBounds, ConfidenceError> {
+    let geometry = RunGeometry {
+        lattice: &run.lattice,
+        hamiltonian: &run.hamiltonian,
+        time_unit: run.time_unit,
+    };
     let mut ev = RunEvaluator::new(
         &run.times,
         noise,
+        geometry,
         run.observables.len(),
         confidence_level,
         simultaneity,
@@ -277,7 +489,10 @@ pub fn evaluate_run(
     let observables = run
         .observables
         .iter()
-        .map(|o| ev.observable(&o.name, o.spread(), &ObservableSums::of(o)))
+        .map(|o| {
+            let sums = ObservableSums::of(o);
+            ev.observable(&o.name, o.spread(), &o.support, o.terms.is_some(), &sums)
+        })
         .collect();
     Ok(ev.finish(observables))
 }

@@ -284,8 +284,9 @@ fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
                 } else {
                     "hoeffding from shot counts"
                 },
-                "statement_used": vec!["global"; n],
-                "light_cone": "not computed in this version: the global statement is used at every time",
+                "statement_used": b.statements.iter().map(|s| s.as_str()).collect::<Vec<_>>(),
+                "light_cone": b.light_cone.describe(),
+                "e_avg_global": column(b.e_avg_global.iter().copied()),
                 "mean": column(b.mean.iter().copied()),
                 "e_wc": column(p.iter().map(|x| x.e_wc)),
                 "e_sys": column(p.iter().map(|x| x.e_sys)),
@@ -300,6 +301,9 @@ fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
                 "lower": column((0..n).map(|k| b.interval(k)[0])),
                 "upper": column((0..n).map(|k| b.interval(k)[1])),
             });
+            if let Some(l) = &b.local {
+                v["e_avg_light_cone"] = column(l.iter().map(|x| x.e_avg));
+            }
             if let Some(d) = &o.description {
                 v["description"] = json!(d);
             }

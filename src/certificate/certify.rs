@@ -20,7 +20,7 @@ use super::body::{build_body, CertifyOptions, RecordedInputs};
 use super::hash::{encode_f64, encode_i64, ContentHasher, ContentKind};
 use super::record::{header_digests, small_digests, streamed_paths, DatasetDigest, FileRecord};
 use crate::bounds::global::SourceData;
-use crate::bounds::run_bounds::{ObservableBounds, RunBounds, RunEvaluator};
+use crate::bounds::run_bounds::{ObservableBounds, RunBounds, RunEvaluator, RunGeometry};
 use crate::checks::report::{CheckPlan, ChecksReport, ObservableChecks};
 use crate::error::{Error, InputKind, Result};
 use crate::inputs::noise_record::read_noise_record;
@@ -158,6 +158,11 @@ fn stream_run(
             RunEvaluator::new(
                 &h.times,
                 model,
+                RunGeometry {
+                    lattice: &h.lattice,
+                    hamiltonian: &h.hamiltonian,
+                    time_unit: h.time_unit,
+                },
                 n_observables,
                 options.confidence,
                 options.simultaneity,
@@ -191,7 +196,14 @@ fn stream_run(
     let mut small = Vec::with_capacity(n_observables);
     let run = stream.read_observables_whole(sink, |o| {
         if let (Some(ev), Some(redrawn), Some(whole)) = (ev.as_mut(), redrawn, o.kept.as_ref()) {
-            let b = ev.observable(&o.outline.name, o.outline.spread(), &o.sums);
+            let outline = &o.outline;
+            let b = ev.observable(
+                &outline.name,
+                outline.spread(),
+                &outline.support,
+                outline.terms.is_some(),
+                &o.sums,
+            );
             let plan = plan.get_or_insert_with(|| {
                 CheckPlan::new(
                     &times,
@@ -203,7 +215,20 @@ fn stream_run(
                     options.check_level,
                 )
             });
-            checked.push(plan.observable(whole, &b.mean, &b.points, None));
+            // V_noise: the smaller of the global (e_i = s_O t) and the light-cone
+            // (e_i = s_O T_i(t)) Efron–Stein sums, at every time where both exist, whichever
+            // statement the interval used: both are upper bounds on the same variance, fixed by
+            // the record before the data are seen, so their minimum is one too and the test
+            // keeps its level (docs/method.md §5). Only T numbers per observable, never the
+            // per-source sensitivities.
+            let local_v = b.local_v_noise();
+            checked.push(plan.observable_with_variance(
+                whole,
+                &b.mean,
+                &b.points,
+                None,
+                local_v.as_deref(),
+            ));
             observables.push(b);
         }
         small.push(small_digests(&o.outline));

@@ -209,10 +209,11 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
         c.loaded.model.instances.len(),
     ));
     s.push_str(&format!(
-        "claim: confidence {} ({}, {} points), global statement at every time\n\n",
+        "claim: confidence {} ({}, {} points), {}\n\n",
         split.confidence,
         split.simultaneity.as_str(),
-        split.points
+        split.points,
+        c.bounds.statement_summary()
     ));
     let header = [
         "observable",
