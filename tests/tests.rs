@@ -4,6 +4,7 @@ mod util;
 
 mod bounds_exact;
 mod certify;
+mod light_cone;
 mod noise_record;
 mod rehearsal;
 mod run_file;
