@@ -23,6 +23,12 @@ pub enum Command {
     Verify(VerifyArgs),
     /// Write a synthetic run and its noise record from an exact simulation.
     Simulate(SimulateArgs),
+    /// Explain a certificate to a referee, and test a stated error against it.
+    Review(super::review::ReviewArgs),
+    /// Plan a run: the largest noise, longest time or largest system for a target error.
+    Budget(super::budget::BudgetArgs),
+    /// Write a self-contained HTML report with plots of a certificate.
+    Report(super::report::ReportArgs),
 }
 
 /// `quassay inspect RUN.h5`.

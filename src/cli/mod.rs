@@ -5,8 +5,11 @@
 //! not an error.
 
 pub mod args;
+pub mod budget;
 pub mod certify;
 pub mod inspect;
+pub mod report;
+pub mod review;
 pub mod simulate;
 pub mod verify;
 
@@ -48,6 +51,9 @@ pub fn main() -> ExitCode {
         Command::Certify(a) => certify::run(a),
         Command::Verify(a) => verify::run(a),
         Command::Simulate(a) => simulate::run(a),
+        Command::Review(a) => review::run(a),
+        Command::Budget(a) => budget::run(a),
+        Command::Report(a) => report::run(a),
     };
     match result {
         Ok(Outcome::Success) => ExitCode::SUCCESS,
