@@ -16,6 +16,7 @@ pub mod fidelity;
 pub mod global;
 pub mod light_cone;
 pub mod local;
+pub mod planning;
 pub mod quantiles;
 pub mod run_bounds;
 pub mod special;

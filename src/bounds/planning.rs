@@ -1,0 +1,408 @@
+//! The inverse questions of planning (bounds.md §7): the largest scale factor on the noise
+//! amplitudes, the longest time, or the largest system that keeps an error bound under a
+//! target, each beside the worst-case answer.
+//!
+//! Every bound of §3 is non-decreasing in each `δ_i`, in `t` and in the number of sources, so
+//! each question is a search for the edge of `{x : f(x) ≤ target}` with `f` non-decreasing:
+//! doubling until `f` exceeds the target, then bisection. The answer returned is always the
+//! lower end of the final bracket, so `f(answer) ≤ target` holds for the value returned (the
+//! conservative side); the bracket is closed to a relative width of [`REL_TOL`].
+//!
+//! The errors are the global ones (§3) at one (observable, time) point:
+//! * [`Which::Averaged`]: `E_avg + E_shot` of a trace averaged over `R` realizations (the
+//!   half-width of the interval `certify` states; `E_shot = 0` when no shot count is given);
+//! * [`Which::Single`]: `E_1`, one noisy evolution.
+//!
+//! The worst-case counterparts replace the error by `min(s_O, E_wc) (+ E_shot)`: no
+//! cancellation between sources. Pure functions, no I/O.
+
+use super::global::{self, PointInputs, ShotData, SourceData};
+use crate::model::noise::Redrawn;
+
+/// Relative width of the final bisection bracket.
+pub const REL_TOL: f64 = 1e-10;
+
+/// Doublings tried before a search is declared unlimited (2^200 times the start).
+const MAX_DOUBLINGS: usize = 200;
+
+/// Which error the target applies to.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Which {
+    /// `E_avg + E_shot`, the half-width of the averaged trace's interval.
+    Averaged,
+    /// `E_1`, one noisy evolution.
+    Single,
+}
+
+impl Which {
+    /// The name used in reports.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Which::Averaged => "averaged",
+            Which::Single => "single",
+        }
+    }
+}
+
+/// Everything but the sources, the scale and the time: one (observable, time) point.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PointSetting {
+    /// `s_O`, the spread of the observable.
+    pub s_o: f64,
+    pub redrawn: Redrawn,
+    /// Number of realizations R (≥ 1).
+    pub realizations: usize,
+    /// Shots per realization; `None`: no shot term.
+    pub shots: Option<u64>,
+    /// Failure probability of the fluctuation term of `E_avg` (after any Bonferroni split).
+    pub p: f64,
+    /// Failure probability of the shot term.
+    pub alpha: f64,
+    /// Failure probability of `E_1`.
+    pub p_single: f64,
+}
+
+/// The sources with every `δ_i` multiplied by `scale`.
+pub fn scaled(sources: &[SourceData], scale: f64) -> Vec<SourceData> {
+    sources
+        .iter()
+        .map(|s| SourceData {
+            delta: s.delta * scale,
+            ..*s
+        })
+        .collect()
+}
+
+/// The shot term of the setting (0 without shot counts).
+pub fn shot_term(set: &PointSetting) -> f64 {
+    match set.shots {
+        Some(s) => global::shot_hoeffding(set.s_o, &vec![s; set.realizations.max(1)], set.alpha),
+        None => 0.0,
+    }
+}
+
+/// All §3 terms at time `t` for the given (already scaled) sources.
+pub fn point(set: &PointSetting, sources: &[SourceData], t: f64) -> global::PointBounds {
+    let counts = vec![set.shots.unwrap_or(1); set.realizations.max(1)];
+    let mut b = global::evaluate_point(&PointInputs {
+        s_o: set.s_o,
+        t,
+        sources,
+        sensitivities: None,
+        redrawn: set.redrawn,
+        realizations: set.realizations.max(1),
+        shots: ShotData::Counts(&counts),
+        p: set.p,
+        alpha: set.alpha,
+        p_single: set.p_single,
+    });
+    if set.shots.is_none() {
+        b.e_shot = 0.0;
+        b.half_width = b.e_avg;
+    }
+    b
+}
+
+/// The stochastic error `which` at time `t` (sources already scaled).
+pub fn error(set: &PointSetting, sources: &[SourceData], t: f64, which: Which) -> f64 {
+    let b = point(set, sources, t);
+    match which {
+        Which::Averaged => b.half_width,
+        Which::Single => b.e_one,
+    }
+}
+
+/// The worst-case counterpart of [`error`]: `min(s_O, E_wc)`, plus `E_shot` for the averaged
+/// trace.
+pub fn worst_error(set: &PointSetting, sources: &[SourceData], t: f64, which: Which) -> f64 {
+    let sens = global::global_sensitivities(sources.len(), set.s_o, t);
+    let wc = set.s_o.min(global::worst_case(sources, &sens));
+    match which {
+        Which::Averaged => wc + shot_term(set),
+        Which::Single => wc,
+    }
+}
+
+/// The answer of a search for the largest `x ≥ 0` with `f(x) ≤ target`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Answer {
+    /// `f(0) > target`: no value works (e.g. the shot term alone exceeds the target).
+    Infeasible,
+    /// `f` never exceeded the target (e.g. the target is at least the spread of O, which caps
+    /// every bound).
+    Unlimited,
+    /// The largest value found; `f(value) ≤ target`, and `f` exceeds the target at
+    /// `upper`, with `upper − value ≤ REL_TOL · upper` (for integers `upper = value + 1`).
+    Found { value: f64, upper: f64 },
+}
+
+impl Answer {
+    /// The value, if one was found.
+    pub fn value(self) -> Option<f64> {
+        match self {
+            Answer::Found { value, .. } => Some(value),
+            _ => None,
+        }
+    }
+}
+
+/// The largest real `x ≥ 0` with `f(x) ≤ target`, for a non-decreasing `f`; `start > 0` is
+/// the first trial point of the doubling.
+pub fn largest_real(f: impl Fn(f64) -> f64, target: f64, start: f64) -> Answer {
+    if !(f(0.0) <= target) {
+        return Answer::Infeasible;
+    }
+    let (mut lo, mut hi) = (0.0, start);
+    let mut n = 0;
+    while f(hi) <= target {
+        lo = hi;
+        hi *= 2.0;
+        n += 1;
+        if n > MAX_DOUBLINGS || !hi.is_finite() {
+            return Answer::Unlimited;
+        }
+    }
+    // Invariant: f(lo) ≤ target < f(hi) (NaN counts as exceeding).
+    for _ in 0..400 {
+        if hi - lo <= REL_TOL * hi {
+            break;
+        }
+        let mid = 0.5 * (lo + hi);
+        if f(mid) <= target {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    Answer::Found {
+        value: lo,
+        upper: hi,
+    }
+}
+
+/// The largest integer `n` in `[min, max]` with `f(n) ≤ target`, for a non-decreasing `f`.
+/// `Unlimited` means `f(max) ≤ target` (the answer is at least `max`).
+pub fn largest_integer(f: impl Fn(usize) -> f64, target: f64, min: usize, max: usize) -> Answer {
+    if !(f(min) <= target) {
+        return Answer::Infeasible;
+    }
+    let (mut lo, mut hi) = (min, min.max(1));
+    while f(hi) <= target {
+        lo = hi;
+        if hi >= max {
+            return Answer::Unlimited;
+        }
+        hi = hi.saturating_mul(2).min(max);
+    }
+    while hi - lo > 1 {
+        let mid = lo + (hi - lo) / 2;
+        if f(mid) <= target {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    Answer::Found {
+        value: lo as f64,
+        upper: hi as f64,
+    }
+}
+
+/// The largest scale factor λ on every amplitude with `error(λ) ≤ target` at time `t`.
+pub fn largest_scale(
+    set: &PointSetting,
+    sources: &[SourceData],
+    t: f64,
+    target: f64,
+    which: Which,
+) -> Answer {
+    largest_real(
+        |l| error(set, &scaled(sources, l), t, which),
+        target,
+        1.0,
+    )
+}
+
+/// The worst-case counterpart of [`largest_scale`].
+pub fn largest_scale_worst(
+    set: &PointSetting,
+    sources: &[SourceData],
+    t: f64,
+    target: f64,
+    which: Which,
+) -> Answer {
+    largest_real(
+        |l| worst_error(set, &scaled(sources, l), t, which),
+        target,
+        1.0,
+    )
+}
+
+/// The longest time with `error(t) ≤ target` at the recorded amplitudes; `t_start > 0` is the
+/// first trial time.
+pub fn longest_time(
+    set: &PointSetting,
+    sources: &[SourceData],
+    target: f64,
+    which: Which,
+    t_start: f64,
+) -> Answer {
+    largest_real(|t| error(set, sources, t, which), target, t_start)
+}
+
+/// The worst-case counterpart of [`longest_time`].
+pub fn longest_time_worst(
+    set: &PointSetting,
+    sources: &[SourceData],
+    target: f64,
+    which: Which,
+    t_start: f64,
+) -> Answer {
+    largest_real(|t| worst_error(set, sources, t, which), target, t_start)
+}
+
+/// The ratio of a stochastic answer to the worst-case one (∞ when the worst case allows
+/// nothing, `None` when either is not a number).
+pub fn gain(stochastic: Answer, worst: Answer) -> Option<f64> {
+    match (stochastic, worst) {
+        (Answer::Found { value: s, .. }, Answer::Found { value: w, .. }) if w > 0.0 => Some(s / w),
+        (Answer::Found { value: s, .. }, Answer::Found { .. }) if s > 0.0 => Some(f64::INFINITY),
+        _ => None,
+    }
+}
+
+/// The least-squares slope of `ln y` against `ln x` (the exponent of a power law).
+pub fn log_log_slope(points: &[(f64, f64)]) -> f64 {
+    let n = points.len() as f64;
+    let (mut sx, mut sy) = (0.0, 0.0);
+    for &(x, y) in points {
+        sx += x.ln();
+        sy += y.ln();
+    }
+    let (mx, my) = (sx / n, sy / n);
+    let (mut sxy, mut sxx) = (0.0, 0.0);
+    for &(x, y) in points {
+        let dx = x.ln() - mx;
+        sxy += dx * (y.ln() - my);
+        sxx += dx * dx;
+    }
+    sxy / sxx
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::bounds::family;
+    use crate::model::noise::Family;
+
+    fn uniform(delta: f64, n: usize) -> Vec<SourceData> {
+        vec![
+            SourceData {
+                family: Family::Uniform,
+                constants: family::constants(&Family::Uniform),
+                delta,
+                systematic: 0.0,
+            };
+            n
+        ]
+    }
+
+    fn setting(shots: Option<u64>) -> PointSetting {
+        PointSetting {
+            s_o: 2.0,
+            redrawn: Redrawn::EveryRealization,
+            realizations: 40,
+            shots,
+            p: 0.025,
+            alpha: 0.025,
+            p_single: 0.05,
+        }
+    }
+
+    #[test]
+    fn bisection_finds_the_edge_of_a_known_function() {
+        // f(x) = x², target 2: the edge is √2.
+        let a = largest_real(|x| x * x, 2.0, 1.0);
+        let Answer::Found { value, upper } = a else {
+            panic!("{a:?}")
+        };
+        assert!(value * value <= 2.0 && upper * upper > 2.0);
+        assert!((value - std::f64::consts::SQRT_2).abs() < 1e-9);
+        assert_eq!(largest_real(|x| x + 3.0, 2.0, 1.0), Answer::Infeasible);
+        assert_eq!(largest_real(|x| x.min(1.0), 2.0, 1.0), Answer::Unlimited);
+        // Integers: largest n with n² ≤ 1000 is 31.
+        let a = largest_integer(|n| (n * n) as f64, 1000.0, 1, 1 << 20);
+        assert_eq!(a.value(), Some(31.0));
+        assert_eq!(largest_integer(|n| n as f64, 1e9, 1, 64), Answer::Unlimited);
+    }
+
+    /// The worst case is linear in λ: `λ_wc = target / (s_O t Σ δ_i b_i)` in closed form
+    /// (uniform: b = 1), and the bisection reproduces it.
+    #[test]
+    fn worst_case_scale_matches_the_closed_form() {
+        let set = setting(None);
+        let src = uniform(0.01, 50);
+        let (t, target) = (2.0, 0.1);
+        let closed = target / (2.0 * t * 50.0 * 0.01);
+        let a = largest_scale_worst(&set, &src, t, target, Which::Single);
+        assert!((a.value().unwrap() / closed - 1.0).abs() < 1e-9, "{a:?}");
+    }
+
+    /// At the returned scale the error equals the target to the bisection tolerance, and just
+    /// above the bracket it exceeds it.
+    #[test]
+    fn the_error_at_the_answer_is_the_target() {
+        let set = setting(Some(1000));
+        let src = uniform(0.02, 30);
+        let (t, target) = (1.0, 0.08);
+        for which in [Which::Averaged, Which::Single] {
+            let Answer::Found { value, upper } = largest_scale(&set, &src, t, target, which)
+            else {
+                panic!()
+            };
+            let at = error(&set, &scaled(&src, value), t, which);
+            assert!(at <= target && (target - at) / target < 1e-8, "{which:?} {at}");
+            assert!(error(&set, &scaled(&src, upper), t, which) > target);
+        }
+    }
+
+    #[test]
+    fn a_target_below_the_shot_term_or_above_the_spread() {
+        let set = setting(Some(10));
+        let src = uniform(0.02, 30);
+        let shot = shot_term(&set);
+        let a = largest_scale(&set, &src, 1.0, 0.5 * shot, Which::Averaged);
+        assert_eq!(a, Answer::Infeasible);
+        let a = largest_scale(&set, &src, 1.0, 2.0, Which::Single);
+        assert_eq!(a, Answer::Unlimited);
+    }
+
+    /// The gain of `E_1` over the worst case grows like √M (bounds.md §7).
+    #[test]
+    fn the_gain_grows_like_the_square_root_of_the_number_of_sources() {
+        let set = setting(None);
+        let mut pts = Vec::new();
+        for m in [10usize, 100, 1000, 10000] {
+            let src = uniform(0.01, m);
+            let s = largest_scale(&set, &src, 1.0, 0.05, Which::Single);
+            let w = largest_scale_worst(&set, &src, 1.0, 0.05, Which::Single);
+            pts.push((m as f64, gain(s, w).unwrap()));
+        }
+        let slope = log_log_slope(&pts);
+        assert!((slope - 0.5).abs() < 0.05, "slope {slope}, {pts:?}");
+    }
+
+    #[test]
+    fn longest_time_is_the_edge_in_time() {
+        let set = setting(Some(1000));
+        let src = uniform(0.02, 30);
+        let Answer::Found { value, .. } = longest_time(&set, &src, 0.1, Which::Averaged, 1.0)
+        else {
+            panic!()
+        };
+        let at = error(&set, &src, value, Which::Averaged);
+        assert!(at <= 0.1 && (0.1 - at) < 1e-8);
+        let w = longest_time_worst(&set, &src, 0.1, Which::Averaged, 1.0);
+        assert!(w.value().unwrap() < value);
+    }
+}
