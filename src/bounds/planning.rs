@@ -123,6 +123,11 @@ pub fn worst_error(set: &PointSetting, sources: &[SourceData], t: f64, which: Wh
     }
 }
 
+/// `y ≤ target`, with NaN counting as exceeding it.
+fn within(y: f64, target: f64) -> bool {
+    y <= target
+}
+
 /// The answer of a search for the largest `x ≥ 0` with `f(x) ≤ target`.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum Answer {
@@ -149,7 +154,7 @@ impl Answer {
 /// The largest real `x ≥ 0` with `f(x) ≤ target`, for a non-decreasing `f`; `start > 0` is
 /// the first trial point of the doubling.
 pub fn largest_real(f: impl Fn(f64) -> f64, target: f64, start: f64) -> Answer {
-    if !(f(0.0) <= target) {
+    if !within(f(0.0), target) {
         return Answer::Infeasible;
     }
     let (mut lo, mut hi) = (0.0, start);
@@ -183,7 +188,7 @@ pub fn largest_real(f: impl Fn(f64) -> f64, target: f64, start: f64) -> Answer {
 /// The largest integer `n` in `[min, max]` with `f(n) ≤ target`, for a non-decreasing `f`.
 /// `Unlimited` means `f(max) ≤ target` (the answer is at least `max`).
 pub fn largest_integer(f: impl Fn(usize) -> f64, target: f64, min: usize, max: usize) -> Answer {
-    if !(f(min) <= target) {
+    if !within(f(min), target) {
         return Answer::Infeasible;
     }
     let (mut lo, mut hi) = (min, min.max(1));
@@ -216,11 +221,7 @@ pub fn largest_scale(
     target: f64,
     which: Which,
 ) -> Answer {
-    largest_real(
-        |l| error(set, &scaled(sources, l), t, which),
-        target,
-        1.0,
-    )
+    largest_real(|l| error(set, &scaled(sources, l), t, which), target, 1.0)
 }
 
 /// The worst-case counterpart of [`largest_scale`].
@@ -356,12 +357,14 @@ mod tests {
         let src = uniform(0.02, 30);
         let (t, target) = (1.0, 0.08);
         for which in [Which::Averaged, Which::Single] {
-            let Answer::Found { value, upper } = largest_scale(&set, &src, t, target, which)
-            else {
+            let Answer::Found { value, upper } = largest_scale(&set, &src, t, target, which) else {
                 panic!()
             };
             let at = error(&set, &scaled(&src, value), t, which);
-            assert!(at <= target && (target - at) / target < 1e-8, "{which:?} {at}");
+            assert!(
+                at <= target && (target - at) / target < 1e-8,
+                "{which:?} {at}"
+            );
             assert!(error(&set, &scaled(&src, upper), t, which) > target);
         }
     }

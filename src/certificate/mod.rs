@@ -7,4 +7,5 @@ pub mod claim;
 pub mod document;
 pub mod hash;
 pub mod record;
+pub mod review;
 pub mod verify;

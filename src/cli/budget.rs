@@ -1,16 +1,591 @@
 //! `quassay budget`: the inverse questions of planning (bounds.md §7).
+//!
+//! From a noise record, a lattice and an observable's spectrum it answers: (a) the largest
+//! scale factor on every amplitude that keeps the error under a target at a given time,
+//! (b) the longest time at the recorded amplitudes, (c) the largest system (chain length, or
+//! L for an L×L or L×L×L lattice) at the recorded amplitudes and time, and (d) a table of (a)
+//! over system sizes. Each answer stands beside its worst-case counterpart (no cancellation
+//! between sources) and their ratio, the gain. Both errors are answered: the averaged trace
+//! (`E_avg + E_shot`, the half-width `certify` states) and one noisy evolution (`E_1`).
+//! The bounds are the global ones (bounds.md §3); the search is in [`crate::bounds::planning`].
 
-use super::Outcome;
+use std::path::PathBuf;
+
+use serde_json::{json, Value};
+
+use super::{print_stdout, Outcome};
+use crate::bounds::confidence::{has_fluctuation_term, split, Simultaneity};
+use crate::bounds::global::SourceData;
+use crate::bounds::planning::{self, Answer, PointSetting, Which};
+use crate::inputs::noise_record::read_noise_record;
+use crate::model::lattice::{Boundary, Geometry, Lattice};
+use crate::model::noise::{ActsOn, Amplitude, NoiseRecord};
+use crate::model::units::TimeUnit;
+use crate::{Error, InputKind};
+
+/// Largest number of sites the system-size search goes to.
+const MAX_SITES: usize = 1_000_000;
 
 /// The command line of `quassay budget`.
 #[derive(Debug, clap::Args)]
 pub struct BudgetArgs {
     /// The noise record (JSON, format quassay-noise v1).
+    #[arg(long, value_name = "NOISE.json")]
+    pub noise: PathBuf,
+    /// The lattice: chain:N, square:LxW (or square:L) or cubic:LxWxH (or cubic:L).
+    #[arg(long, value_parser = parse_lattice, value_name = "GEOMETRY:SHAPE")]
+    pub lattice: (Geometry, Vec<usize>),
+    /// Boundary condition of the lattice.
+    #[arg(long, default_value = "open", value_parser = parse_boundary)]
+    pub boundary: Boundary,
+    /// The time unit of --time (and of the run being planned): s, ms, us or ns.
+    #[arg(long, value_parser = parse_time_unit)]
+    pub time_unit: TimeUnit,
+    /// Eigenvalue range of the observable, MIN,MAX (e.g. -1,1).
+    #[arg(long, value_parser = parse_spectrum, allow_hyphen_values = true, value_name = "MIN,MAX")]
+    pub spectrum: [f64; 2],
+    /// The error not to exceed (same units as the observable).
+    #[arg(long, value_parser = positive)]
+    pub target: f64,
+    /// The evolution time, in --time-unit.
+    #[arg(long, value_parser = positive)]
+    pub time: f64,
+    /// Confidence level 1 - epsilon, strictly between 0 and 1.
+    #[arg(long, default_value_t = 0.95, value_parser = open_unit)]
+    pub confidence: f64,
+    /// Number of (time, observable) points the claim is to hold for simultaneously
+    /// (Bonferroni, as certify does over times x observables).
+    #[arg(long, default_value_t = 1, value_parser = at_least_one)]
+    pub points: usize,
+    /// Realizations averaged in the reported trace.
+    #[arg(long, default_value_t = 1, value_parser = at_least_one)]
+    pub realizations: usize,
+    /// Shots per realization; without it the averaged error has no shot term.
+    #[arg(long, value_parser = at_least_one_u64)]
+    pub shots: Option<u64>,
+    /// Linear sizes of the table (chain length, or L of L×L / L×L×L), comma separated
+    /// [default: chain 10,100,1000,10000; square 3,10,32,100; cubic 3,5,10,22].
+    #[arg(long, value_delimiter = ',', value_parser = at_least_one)]
+    pub sizes: Option<Vec<usize>>,
+    /// Print the answers as JSON.
     #[arg(long)]
-    pub noise: std::path::PathBuf,
+    pub json: bool,
+}
+
+fn parse_lattice(text: &str) -> Result<(Geometry, Vec<usize>), String> {
+    let usage = "give chain:N, square:LxW (or square:L) or cubic:LxWxH (or cubic:L)";
+    let (g, shape) = text
+        .split_once(':')
+        .ok_or_else(|| format!("'{text}' has no ':'; {usage}"))?;
+    let geometry = match Geometry::parse(g) {
+        Some(g @ (Geometry::Chain | Geometry::Square | Geometry::Cubic)) => g,
+        _ => return Err(format!("'{g}' is not chain, square or cubic; {usage}")),
+    };
+    let mut dims = Vec::new();
+    for part in shape.split('x') {
+        match part.trim().parse::<usize>() {
+            Ok(n) if n > 0 => dims.push(n),
+            _ => return Err(format!("'{part}' is not a positive integer; {usage}")),
+        }
+    }
+    let d = geometry.dimension();
+    if dims.len() == 1 && d > 1 {
+        dims = vec![dims[0]; d];
+    }
+    if dims.len() != d {
+        return Err(format!(
+            "a {g} lattice has {d} side(s), got {}; {usage}",
+            dims.len()
+        ));
+    }
+    Ok((geometry, dims))
+}
+
+fn parse_boundary(text: &str) -> Result<Boundary, String> {
+    Boundary::parse(text).ok_or_else(|| format!("'{text}' is not open or periodic"))
+}
+
+fn parse_time_unit(text: &str) -> Result<TimeUnit, String> {
+    TimeUnit::parse(text)
+        .ok_or_else(|| format!("'{text}' is not a time unit; give s, ms, us or ns"))
+}
+
+fn number(text: &str) -> Result<f64, String> {
+    match text.trim().parse::<f64>() {
+        Ok(x) if x.is_finite() => Ok(x),
+        _ => Err(format!("'{text}' is not a finite number")),
+    }
+}
+
+fn parse_spectrum(text: &str) -> Result<[f64; 2], String> {
+    let (a, b) = text
+        .split_once(',')
+        .ok_or_else(|| format!("'{text}' is not MIN,MAX; give e.g. -1,1"))?;
+    let (a, b) = (number(a)?, number(b)?);
+    if a < b {
+        Ok([a, b])
+    } else {
+        Err(format!("the minimum {a} must be below the maximum {b}"))
+    }
+}
+
+fn positive(text: &str) -> Result<f64, String> {
+    let x = number(text)?;
+    if x > 0.0 {
+        Ok(x)
+    } else {
+        Err(format!("{x} must be positive"))
+    }
+}
+
+fn open_unit(text: &str) -> Result<f64, String> {
+    let x = number(text)?;
+    if x > 0.0 && x < 1.0 {
+        Ok(x)
+    } else {
+        Err(format!("{x} is not strictly between 0 and 1"))
+    }
+}
+
+fn at_least_one(text: &str) -> Result<usize, String> {
+    match text.trim().parse::<usize>() {
+        Ok(n) if n >= 1 => Ok(n),
+        _ => Err(format!("'{text}' is not a positive integer")),
+    }
+}
+
+fn at_least_one_u64(text: &str) -> Result<u64, String> {
+    at_least_one(text).map(|n| n as u64)
+}
+
+/// The planning problem with everything read and checked.
+struct Problem {
+    record: NoiseRecord,
+    noise_path: PathBuf,
+    geometry: Geometry,
+    boundary: Boundary,
+    time_unit: TimeUnit,
+}
+
+impl Problem {
+    /// The expanded sources on a lattice of the given shape.
+    fn sources(&self, shape: &[usize]) -> crate::Result<Vec<SourceData>> {
+        let lattice = Lattice::regular(self.geometry, shape, self.boundary)
+            .map_err(|e| Error::Options(format!("--lattice: {e}")))?;
+        let model = self
+            .record
+            .expand(&lattice, self.time_unit)
+            .map_err(|problems| Error::Input {
+                kind: InputKind::NoiseRecord,
+                file: self.noise_path.clone(),
+                problems,
+            })?;
+        Ok(model
+            .instances
+            .iter()
+            .map(SourceData::from_instance)
+            .collect())
+    }
+
+    /// Why the record cannot be laid on other system sizes, if it cannot.
+    fn not_resizable(&self) -> Option<String> {
+        self.record.sources.iter().enumerate().find_map(|(i, s)| {
+            if matches!(s.acts_on, ActsOn::Sites(_)) {
+                Some(format!(
+                    "source {i} ('{}') lists its sites explicitly, which fixes the system",
+                    s.name
+                ))
+            } else if matches!(s.amplitude, Amplitude::PerInstance(_)) {
+                Some(format!(
+                    "source {i} ('{}') gives one amplitude per instance, which fixes the system",
+                    s.name
+                ))
+            } else {
+                None
+            }
+        })
+    }
+
+    fn shape(&self, l: usize) -> Vec<usize> {
+        vec![l; self.geometry.dimension()]
+    }
+
+    fn min_side(&self) -> usize {
+        if self.boundary == Boundary::Periodic {
+            3
+        } else {
+            1
+        }
+    }
+
+    fn max_side(&self) -> usize {
+        match self.geometry.dimension() {
+            1 => MAX_SITES,
+            2 => 1000,
+            _ => 100,
+        }
+    }
+}
+
+/// One answer with its worst-case counterpart.
+struct Pair {
+    stochastic: Answer,
+    worst: Answer,
+}
+
+impl Pair {
+    fn gain(&self) -> Option<f64> {
+        planning::gain(self.stochastic, self.worst)
+    }
+}
+
+fn answer_json(a: Answer) -> Value {
+    match a {
+        Answer::Found { value, upper } => json!({
+            "status": "found", "value": finite(value), "bracket_upper": finite(upper),
+        }),
+        Answer::Unlimited => json!({ "status": "unlimited" }),
+        Answer::Infeasible => json!({ "status": "infeasible" }),
+    }
+}
+
+fn finite(x: f64) -> Value {
+    if x.is_finite() {
+        json!(x)
+    } else {
+        json!("unbounded")
+    }
+}
+
+fn pair_json(p: &Pair) -> Value {
+    json!({
+        "stochastic": answer_json(p.stochastic),
+        "worst_case": answer_json(p.worst),
+        "gain": p.gain().map(finite),
+    })
 }
 
 /// Runs `budget`.
-pub fn run(_args: &BudgetArgs) -> crate::Result<Outcome> {
-    Err(crate::Error::Options("`quassay budget` is not available yet".into()))
+pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
+    let record = read_noise_record(&args.noise)?;
+    let s_o = args.spectrum[1] - args.spectrum[0];
+    let fluct = has_fluctuation_term(record.redrawn);
+    let cs = split(
+        args.confidence,
+        fluct,
+        args.shots.is_some(),
+        args.points,
+        Simultaneity::Simultaneous,
+    )
+    .map_err(|e| Error::Options(format!("--confidence: {e:?}")))?;
+    let set = PointSetting {
+        s_o,
+        redrawn: record.redrawn,
+        realizations: args.realizations,
+        shots: args.shots,
+        p: cs.p_point,
+        alpha: cs.alpha_point,
+        p_single: cs.p_single_point,
+    };
+    let prob = Problem {
+        noise_path: args.noise.clone(),
+        geometry: args.lattice.0,
+        boundary: args.boundary,
+        time_unit: args.time_unit,
+        record,
+    };
+    let shape = args.lattice.1.clone();
+    let sources = prob.sources(&shape)?;
+    let (t, target) = (args.time, args.target);
+    let whiches = [Which::Averaged, Which::Single];
+
+    // (a) the largest scale factor, (b) the longest time.
+    let scale: Vec<Pair> = whiches
+        .iter()
+        .map(|&w| Pair {
+            stochastic: planning::largest_scale(&set, &sources, t, target, w),
+            worst: planning::largest_scale_worst(&set, &sources, t, target, w),
+        })
+        .collect();
+    let time: Vec<Pair> = whiches
+        .iter()
+        .map(|&w| Pair {
+            stochastic: planning::longest_time(&set, &sources, target, w, t),
+            worst: planning::longest_time_worst(&set, &sources, target, w, t),
+        })
+        .collect();
+
+    // (c) the largest system, (d) the table; both need the record on other sizes.
+    let resize = prob.not_resizable();
+    let mut size: Option<Vec<Pair>> = None;
+    let mut table: Vec<Value> = Vec::new();
+    let mut table_rows: Vec<(usize, usize, Vec<Pair>)> = Vec::new();
+    if resize.is_none() {
+        let (lo, hi) = (prob.min_side(), prob.max_side());
+        let mut pairs = Vec::new();
+        for &w in &whiches {
+            let failure = std::cell::RefCell::new(None::<String>);
+            let f = |worst: bool| {
+                planning::largest_integer(
+                    |l| match prob.sources(&prob.shape(l)) {
+                        Ok(src) if worst => planning::worst_error(&set, &src, t, w),
+                        Ok(src) => planning::error(&set, &src, t, w),
+                        Err(e) => {
+                            failure.borrow_mut().get_or_insert(e.to_string());
+                            f64::INFINITY
+                        }
+                    },
+                    target,
+                    lo,
+                    hi,
+                )
+            };
+            let stochastic = f(false);
+            let worst = f(true);
+            if let Some(e) = failure.into_inner() {
+                return Err(Error::Options(e));
+            }
+            pairs.push(Pair { stochastic, worst });
+        }
+        size = Some(pairs);
+        let sizes = args.sizes.clone().unwrap_or_else(|| match prob.geometry {
+            Geometry::Chain => vec![10, 100, 1000, 10000],
+            Geometry::Square => vec![3, 10, 32, 100],
+            _ => vec![3, 5, 10, 22],
+        });
+        for l in sizes {
+            if l < lo {
+                return Err(Error::Options(format!(
+                    "--sizes: {l} is below the smallest side {lo} of a {} lattice",
+                    prob.boundary.as_str()
+                )));
+            }
+            let src = prob.sources(&prob.shape(l))?;
+            let pairs: Vec<Pair> = whiches
+                .iter()
+                .map(|&w| Pair {
+                    stochastic: planning::largest_scale(&set, &src, t, target, w),
+                    worst: planning::largest_scale_worst(&set, &src, t, target, w),
+                })
+                .collect();
+            table_rows.push((l, src.len(), pairs));
+        }
+    }
+    let mut slopes = Vec::new();
+    for (k, w) in whiches.iter().enumerate() {
+        let pts: Vec<(f64, f64)> = table_rows
+            .iter()
+            .filter_map(|(_, m, p)| {
+                p[k].gain()
+                    .filter(|g| g.is_finite())
+                    .map(|g| (*m as f64, g))
+            })
+            .filter(|(m, _)| *m > 0.0)
+            .collect();
+        let slope = (pts.len() >= 2).then(|| planning::log_log_slope(&pts));
+        slopes.push((w.as_str(), slope));
+    }
+    for (l, m, pairs) in &table_rows {
+        table.push(json!({
+            "side": l, "sources": m,
+            "averaged": pair_json(&pairs[0]), "single": pair_json(&pairs[1]),
+        }));
+    }
+
+    let shot = planning::shot_term(&set);
+    let unit = args.time_unit.as_str();
+    let text = if args.json {
+        let by = |v: &[Pair]| json!({ "averaged": pair_json(&v[0]), "single": pair_json(&v[1]) });
+        let mut s = serde_json::to_string_pretty(&json!({
+            "noise_record": args.noise.display().to_string(),
+            "lattice": { "geometry": prob.geometry.as_str(), "shape": shape,
+                         "boundary": prob.boundary.as_str() },
+            "sources": sources.len(),
+            "redrawn": prob.record.redrawn.as_str(),
+            "time_unit": unit,
+            "spread": s_o,
+            "target": target,
+            "time": t,
+            "confidence": args.confidence,
+            "points": args.points,
+            "realizations": args.realizations,
+            "shots": args.shots,
+            "e_shot": shot,
+            "failure_probability": { "fluctuation": cs.p_point, "shots": cs.alpha_point,
+                                     "single_evolution": cs.p_single_point },
+            "errors": {
+                "averaged": "e_avg + e_shot (global bounds, bounds.md §3)",
+                "single": "e_one, one noisy evolution (global bounds, bounds.md §3)",
+            },
+            "bisection_relative_tolerance": planning::REL_TOL,
+            "scale": by(&scale),
+            "time_limit": by(&time),
+            "size": match (&size, &resize) {
+                (Some(v), _) => by(v),
+                (None, why) => json!({ "status": "not_available", "reason": why }),
+            },
+            "table": table,
+            "gain_exponent": slopes.iter().map(|(w, s)| (w.to_string(), json!(s))).collect::<serde_json::Map<_, _>>(),
+        }))
+        .unwrap_or_default();
+        s.push('\n');
+        s
+    } else {
+        render_text(
+            args,
+            &prob,
+            &sources,
+            shot,
+            &scale,
+            &time,
+            &size,
+            &resize,
+            &table_rows,
+            &slopes,
+        )
+    };
+    print_stdout(&text)?;
+    Ok(Outcome::Success)
+}
+
+fn show(x: f64) -> String {
+    if x.is_infinite() {
+        "unbounded".into()
+    } else if x == 0.0 {
+        "0".into()
+    } else if (1e-3..1e5).contains(&x.abs()) {
+        format!("{x:.5}")
+            .trim_end_matches('0')
+            .trim_end_matches('.')
+            .to_string()
+    } else {
+        format!("{x:.4e}")
+    }
+}
+
+fn show_answer(a: Answer, integer: bool) -> String {
+    match a {
+        Answer::Found { value, .. } if integer => format!("{value:.0}"),
+        Answer::Found { value, .. } => show(value),
+        Answer::Unlimited => "unlimited".into(),
+        Answer::Infeasible => "none".into(),
+    }
+}
+
+fn row(out: &mut String, label: &str, p: &Pair, integer: bool, suffix: &str) {
+    let g = p
+        .gain()
+        .map(|g| format!("{}x", show(g)))
+        .unwrap_or_else(|| "-".into());
+    out.push_str(&format!(
+        "  {label:<28} {:>14} {:>14} {:>12}\n",
+        format!("{}{suffix}", show_answer(p.stochastic, integer)),
+        format!("{}{suffix}", show_answer(p.worst, integer)),
+        g
+    ));
+}
+
+#[allow(clippy::too_many_arguments)]
+fn render_text(
+    args: &BudgetArgs,
+    prob: &Problem,
+    sources: &[SourceData],
+    shot: f64,
+    scale: &[Pair],
+    time: &[Pair],
+    size: &Option<Vec<Pair>>,
+    resize: &Option<String>,
+    table: &[(usize, usize, Vec<Pair>)],
+    slopes: &[(&str, Option<f64>)],
+) -> String {
+    let unit = args.time_unit.as_str();
+    let shape: Vec<String> = args.lattice.1.iter().map(|n| n.to_string()).collect();
+    let mut s = format!(
+        "budget: {} on a {} lattice {} ({} boundary), {} noise instances, redrawn {}\n",
+        args.noise.display(),
+        prob.geometry.as_str(),
+        shape.join("x"),
+        prob.boundary.as_str(),
+        sources.len(),
+        prob.record.redrawn.as_str(),
+    );
+    s.push_str(&format!(
+        "target error {} (observable spread {}) at t = {} {unit}, confidence {} over {} point(s); \
+         averaged trace: {} realization(s), {}\n\n",
+        show(args.target),
+        show(args.spectrum[1] - args.spectrum[0]),
+        show(args.time),
+        args.confidence,
+        args.points,
+        args.realizations,
+        match args.shots {
+            Some(n) => format!("{n} shots each (E_shot = {})", show(shot)),
+            None => "no shot term".into(),
+        }
+    ));
+    s.push_str(&format!(
+        "  {:<28} {:>14} {:>14} {:>12}\n",
+        "question", "stochastic", "worst case", "gain"
+    ));
+    s.push_str("(a) largest scale factor on every amplitude\n");
+    row(&mut s, "averaged (E_avg + E_shot)", &scale[0], false, "");
+    row(&mut s, "single evolution (E_1)", &scale[1], false, "");
+    s.push_str(&format!(
+        "(b) longest time at the recorded amplitudes ({unit})\n"
+    ));
+    row(&mut s, "averaged (E_avg + E_shot)", &time[0], false, "");
+    row(&mut s, "single evolution (E_1)", &time[1], false, "");
+    let side = match prob.geometry {
+        Geometry::Chain => "chain length",
+        Geometry::Square => "L of L x L",
+        _ => "L of L x L x L",
+    };
+    s.push_str(&format!(
+        "(c) largest system ({side}) at the recorded amplitudes and time\n"
+    ));
+    match (size, resize) {
+        (Some(v), _) => {
+            row(&mut s, "averaged (E_avg + E_shot)", &v[0], true, "");
+            row(&mut s, "single evolution (E_1)", &v[1], true, "");
+        }
+        (None, why) => s.push_str(&format!(
+            "  not available: {}\n",
+            why.as_deref().unwrap_or("unknown")
+        )),
+    }
+    if !table.is_empty() {
+        s.push_str("(d) largest scale factor by system size\n");
+        s.push_str(&format!(
+            "  {:>8} {:>9} {:>12} {:>12} {:>10} {:>12} {:>12} {:>10}\n",
+            "side", "sources", "avg", "avg wc", "gain", "E_1", "E_1 wc", "gain"
+        ));
+        for (l, m, p) in table {
+            let g = |p: &Pair| p.gain().map(show).unwrap_or_else(|| "-".into());
+            s.push_str(&format!(
+                "  {l:>8} {m:>9} {:>12} {:>12} {:>10} {:>12} {:>12} {:>10}\n",
+                show_answer(p[0].stochastic, false),
+                show_answer(p[0].worst, false),
+                g(&p[0]),
+                show_answer(p[1].stochastic, false),
+                show_answer(p[1].worst, false),
+                g(&p[1]),
+            ));
+        }
+        for (w, slope) in slopes {
+            if let Some(x) = slope {
+                s.push_str(&format!(
+                    "  fitted exponent of the {w} gain against the number of sources: {:.3} \
+                     (1/2 is the square-root law)\n",
+                    x
+                ));
+            }
+        }
+    }
+    s.push_str(
+        "\nstochastic: the global bounds of bounds.md §3 (cancellation between independent \
+         sources); worst case: no cancellation; gain: stochastic / worst case. \"none\": the \
+         target is below the shot term; \"unlimited\": the target is at least the spread of the \
+         observable (or the search limit was reached).\n",
+    );
+    s
 }

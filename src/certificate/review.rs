@@ -1,0 +1,689 @@
+//! What `quassay review` explains: a certificate body read into plain-language statements
+//! for a referee, and the test of a stated error against the certified half-widths.
+//!
+//! Pure: it reads a body (`serde_json::Value`, as `Certificate::read` gives it) and returns
+//! sentences and numbers; problems name JSON pointers into the certificate file. Nothing here
+//! recomputes a bound: every number comes from the body, whose digest the caller checked.
+
+use serde_json::{json, Value};
+
+use crate::Problem;
+
+/// A number of a column entry: a JSON number, or `"unbounded"` (∞).
+fn number(v: &Value) -> Option<f64> {
+    match v {
+        Value::String(s) if s == "unbounded" => Some(f64::INFINITY),
+        v => v.as_f64(),
+    }
+}
+
+/// A column of numbers at `/body/observables/<k>/<name>`.
+fn column(obs: &Value, k: usize, name: &str, problems: &mut Vec<Problem>) -> Vec<f64> {
+    let ptr = format!("/body/observables/{k}/{name}");
+    match obs[name].as_array() {
+        Some(a) => a
+            .iter()
+            .enumerate()
+            .map(|(i, v)| {
+                number(v).unwrap_or_else(|| {
+                    problems.push(Problem::new(format!("{ptr}/{i}"), "is not a number"));
+                    f64::NAN
+                })
+            })
+            .collect(),
+        None => {
+            problems.push(Problem::new(ptr, "is missing or not an array"));
+            Vec::new()
+        }
+    }
+}
+
+/// One observable's certified numbers, per recorded time.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ObservableRows {
+    pub name: String,
+    pub e_avg: Vec<f64>,
+    pub e_shot: Vec<f64>,
+    pub e_wc: Vec<f64>,
+    pub e_one: Vec<f64>,
+    pub statement_used: Vec<String>,
+    pub shot_approximate: bool,
+}
+
+impl ObservableRows {
+    /// `E_avg + E_shot` at time index `k`: the certified half-width.
+    pub fn half_width(&self, k: usize) -> f64 {
+        self.e_avg[k] + self.e_shot[k]
+    }
+
+    /// The worst time: the largest half-width, earliest on ties (as certify's summary).
+    pub fn worst_index(&self) -> Option<usize> {
+        (0..self.e_avg.len()).fold(None, |best, k| match best {
+            Some(b) if self.half_width(b) >= self.half_width(k) => Some(b),
+            _ => Some(k),
+        })
+    }
+}
+
+/// The parts of a body that review reads, checked.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BodyView {
+    pub times: Vec<f64>,
+    pub time_unit: String,
+    pub observables: Vec<ObservableRows>,
+    pub verdict_status: String,
+    pub verdict_text: String,
+}
+
+/// Reads the per-observable columns and the verdict; every problem is collected.
+pub fn read_view(body: &Value) -> Result<BodyView, Vec<Problem>> {
+    let mut problems = Vec::new();
+    let times: Vec<f64> = match body["run"]["times"].as_array() {
+        Some(a) => a.iter().filter_map(Value::as_f64).collect(),
+        None => {
+            problems.push(Problem::new(
+                "/body/run/times",
+                "is missing or not an array",
+            ));
+            Vec::new()
+        }
+    };
+    let mut observables = Vec::new();
+    match body["observables"].as_array() {
+        Some(list) => {
+            for (k, o) in list.iter().enumerate() {
+                let name = o["name"].as_str().unwrap_or_default().to_owned();
+                if name.is_empty() {
+                    problems.push(Problem::new(
+                        format!("/body/observables/{k}/name"),
+                        "is missing or not a string",
+                    ));
+                }
+                let rows = ObservableRows {
+                    name,
+                    e_avg: column(o, k, "e_avg", &mut problems),
+                    e_shot: column(o, k, "e_shot", &mut problems),
+                    e_wc: column(o, k, "e_wc", &mut problems),
+                    e_one: column(o, k, "e_one", &mut problems),
+                    statement_used: o["statement_used"]
+                        .as_array()
+                        .map(|a| {
+                            a.iter()
+                                .map(|s| s.as_str().unwrap_or("global").to_owned())
+                                .collect()
+                        })
+                        .unwrap_or_default(),
+                    shot_approximate: o["shot_term"]
+                        .as_str()
+                        .is_some_and(|s| s.contains("approximate")),
+                };
+                for (c, len) in [
+                    ("e_avg", rows.e_avg.len()),
+                    ("e_shot", rows.e_shot.len()),
+                    ("e_wc", rows.e_wc.len()),
+                    ("e_one", rows.e_one.len()),
+                ] {
+                    if len != times.len() {
+                        problems.push(Problem::new(
+                            format!("/body/observables/{k}/{c}"),
+                            format!("has {len} entries for {} recorded times", times.len()),
+                        ));
+                    }
+                }
+                observables.push(rows);
+            }
+        }
+        None => problems.push(Problem::new(
+            "/body/observables",
+            "is missing or not an array",
+        )),
+    }
+    let verdict_status = body["verdict"]["status"]
+        .as_str()
+        .unwrap_or("missing")
+        .to_owned();
+    let verdict_text = body["verdict"]["text"].as_str().unwrap_or("").to_owned();
+    if problems.is_empty() {
+        Ok(BodyView {
+            times,
+            time_unit: body["run"]["time_unit"].as_str().unwrap_or("").to_owned(),
+            observables,
+            verdict_status,
+            verdict_text,
+        })
+    } else {
+        Err(problems)
+    }
+}
+
+/// `half_width ≤ claimed`; a NaN half-width supports nothing.
+fn supports(half_width: f64, claimed: f64) -> bool {
+    half_width <= claimed
+}
+
+/// One (observable, time) point of a claim check.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ClaimPoint {
+    pub observable: String,
+    pub time_index: usize,
+    pub time: f64,
+    pub e_avg: f64,
+    pub e_shot: f64,
+    pub half_width: f64,
+}
+
+impl ClaimPoint {
+    fn to_json(&self) -> Value {
+        json!({
+            "observable": self.observable, "time_index": self.time_index, "time": self.time,
+            "e_avg": self.e_avg, "e_shot": self.e_shot, "half_width": self.half_width,
+        })
+    }
+}
+
+/// Whether a certificate supports a stated error, with the numbers.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ClaimAnswer {
+    pub claimed: f64,
+    pub supported: bool,
+    /// The points checked.
+    pub points: usize,
+    /// The largest half-width among them.
+    pub largest: Option<ClaimPoint>,
+    /// The first point (observable order, then time) whose half-width exceeds the claim.
+    pub first_excess: Option<ClaimPoint>,
+    /// Whether the numbers alone would support the claim (before the verdict is considered).
+    pub numbers_support: bool,
+    /// One sentence saying why.
+    pub reason: String,
+}
+
+impl ClaimAnswer {
+    /// The answer as data (`review --json`).
+    pub fn to_json(&self) -> Value {
+        json!({
+            "claimed_error": self.claimed,
+            "supported": self.supported,
+            "numbers_support": self.numbers_support,
+            "points_checked": self.points,
+            "largest_half_width": self.largest.as_ref().map(ClaimPoint::to_json),
+            "first_excess": self.first_excess.as_ref().map(ClaimPoint::to_json),
+            "reason": self.reason,
+        })
+    }
+}
+
+/// Does the certificate support the error `claimed` for the observable `only` (all if `None`)
+/// at every recorded time `≤ until` (all if `None`)? Supported iff every selected half-width
+/// `E_avg + E_shot ≤ claimed` and the verdict is not `inconsistent`: a certificate whose data
+/// contradict its own noise record supports no claim, because every bound rests on that
+/// record. `Err` is a message for the user (an unknown observable, no time selected).
+pub fn check_claim(
+    view: &BodyView,
+    claimed: f64,
+    only: Option<&str>,
+    until: Option<f64>,
+) -> Result<ClaimAnswer, String> {
+    let selected: Vec<&ObservableRows> = view
+        .observables
+        .iter()
+        .filter(|o| only.is_none_or(|n| o.name == n))
+        .collect();
+    if selected.is_empty() {
+        let names: Vec<&str> = view.observables.iter().map(|o| o.name.as_str()).collect();
+        return Err(format!(
+            "the certificate has no observable '{}'; it has: {}",
+            only.unwrap_or(""),
+            names.join(", ")
+        ));
+    }
+    let times: Vec<usize> = (0..view.times.len())
+        .filter(|&k| until.is_none_or(|u| view.times[k] <= u))
+        .collect();
+    if times.is_empty() {
+        return Err(format!(
+            "no recorded time is at or before --until {} {}; the earliest is {} {}",
+            until.unwrap_or(f64::NAN),
+            view.time_unit,
+            view.times.first().copied().unwrap_or(f64::NAN),
+            view.time_unit
+        ));
+    }
+    let mut largest: Option<ClaimPoint> = None;
+    let mut first_excess = None;
+    let mut points = 0;
+    for o in &selected {
+        for &k in &times {
+            points += 1;
+            let p = ClaimPoint {
+                observable: o.name.clone(),
+                time_index: k,
+                time: view.times[k],
+                e_avg: o.e_avg[k],
+                e_shot: o.e_shot[k],
+                half_width: o.half_width(k),
+            };
+            // A NaN half-width never supports a claim.
+            if first_excess.is_none() && !supports(p.half_width, claimed) {
+                first_excess = Some(p.clone());
+            }
+            if largest.as_ref().is_none_or(|l| p.half_width > l.half_width) {
+                largest = Some(p);
+            }
+        }
+    }
+    let numbers_support = first_excess.is_none();
+    let inconsistent = view.verdict_status == "inconsistent";
+    let supported = numbers_support && !inconsistent;
+    let reason = if inconsistent {
+        format!(
+            "no: the certificate's verdict is inconsistent (the data contradict the noise record \
+             its bounds rest on), so it supports no stated error{}",
+            if numbers_support {
+                ", although its half-widths are below the claim"
+            } else {
+                ""
+            }
+        )
+    } else if let Some(p) = &first_excess {
+        format!(
+            "no: at {} t = {} {} the certified half-width E_avg + E_shot = {} + {} = {} exceeds \
+             the claimed {}",
+            p.observable, p.time, view.time_unit, p.e_avg, p.e_shot, p.half_width, claimed
+        )
+    } else {
+        let l = largest.as_ref();
+        format!(
+            "yes: every certified half-width E_avg + E_shot at the {points} selected points is at \
+             most the claimed {claimed}; the largest is {} ({} at t = {} {})",
+            l.map_or(f64::NAN, |p| p.half_width),
+            l.map_or("", |p| p.observable.as_str()),
+            l.map_or(f64::NAN, |p| p.time),
+            view.time_unit
+        )
+    };
+    Ok(ClaimAnswer {
+        claimed,
+        supported,
+        points,
+        largest,
+        first_excess,
+        numbers_support,
+        reason,
+    })
+}
+
+/// The gain of the stochastic statement over the worst case for one observable, at its
+/// worst time.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Gain {
+    pub observable: String,
+    pub time: f64,
+    pub e_avg: f64,
+    pub e_wc: f64,
+    /// `e_wc / e_avg` (∞ if the worst case is unbounded; NaN if `e_avg` is 0).
+    pub gain: f64,
+}
+
+/// Gains per observable.
+pub fn gains(view: &BodyView) -> Vec<Gain> {
+    view.observables
+        .iter()
+        .filter_map(|o| {
+            let k = o.worst_index()?;
+            let (e_avg, e_wc) = (o.e_avg[k], o.e_wc[k]);
+            Some(Gain {
+                observable: o.name.clone(),
+                time: view.times.get(k).copied().unwrap_or(f64::NAN),
+                e_avg,
+                e_wc,
+                gain: if e_avg > 0.0 { e_wc / e_avg } else { f64::NAN },
+            })
+        })
+        .collect()
+}
+
+/// The plain-language explanation of a certificate body.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Explanation {
+    /// What is claimed: one sentence per observable, then how the probability was spent.
+    pub claim: Vec<String>,
+    /// The assumptions as recorded.
+    pub assumptions: Vec<String>,
+    /// What the data could not test, or flagged.
+    pub untested: Vec<String>,
+    /// What the model does not cover, as recorded.
+    pub not_covered: Vec<String>,
+    /// Which statement (global or light-cone) each observable used.
+    pub statements: Vec<String>,
+    pub gains: Vec<Gain>,
+    pub verdict_status: String,
+    pub verdict_text: String,
+}
+
+fn strings(v: &Value) -> Vec<String> {
+    v.as_array()
+        .map(|a| {
+            a.iter()
+                .filter_map(|s| s.as_str().map(str::to_owned))
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
+/// Explains a body.
+pub fn explain(body: &Value, view: &BodyView) -> Explanation {
+    let claim_v = &body["claim"];
+    let split = &claim_v["probability_split"];
+    let mut claim: Vec<String> = claim_v["per_observable"]
+        .as_array()
+        .map(|a| {
+            a.iter()
+                .filter_map(|c| c["text"].as_str().map(str::to_owned))
+                .collect()
+        })
+        .unwrap_or_default();
+    let statement = claim_v["statement"].as_str().unwrap_or("unknown");
+    claim.push(format!(
+        "Confidence {} ({}): {}.",
+        claim_v["confidence"],
+        statement,
+        if statement == "simultaneous" {
+            "the intervals hold together, at every recorded time and for every observable"
+        } else {
+            "each interval holds at its own time, not jointly with the others"
+        }
+    ));
+    claim.push(format!(
+        "The failure probability {} was split by the rule '{}': {} to the noise fluctuation and \
+         {} to the shot noise, over {} points with {} correction; one evolution (E_1) gets {} \
+         per point.",
+        split["epsilon"],
+        split["rule"].as_str().unwrap_or("?"),
+        split["noise_fluctuation_total"],
+        split["shot_noise_total"],
+        split["points"],
+        split["correction"].as_str().unwrap_or("no"),
+        split["single_evolution_per_point"],
+    ));
+
+    let mut untested = Vec::new();
+    let r = body["run"]["n_realizations"].as_u64().unwrap_or(0);
+    if r == 1 {
+        untested.push(
+            "One realization only: the spread between realizations cannot be measured, so the \
+             variance checks of the noise amplitudes were not possible."
+                .to_string(),
+        );
+    }
+    match body["noise"]["redrawn"].as_str() {
+        Some("once") => untested.push(
+            "The noise is drawn once for the whole dataset: averaging realizations does not \
+             reduce its fluctuation, and the realizations cannot reveal its size."
+                .to_string(),
+        ),
+        Some("every_shot") => untested.push(
+            "The noise is redrawn every shot: its fluctuation is inside the shot noise, and the \
+             variance checks test only the shot noise."
+                .to_string(),
+        ),
+        _ => {}
+    }
+    for o in &view.observables {
+        if o.shot_approximate {
+            untested.push(format!(
+                "{}: the shot term comes from standard errors by a normal approximation; it is \
+                 approximate, not a bound.",
+                o.name
+            ));
+        }
+    }
+    let checks = &body["checks"];
+    if checks["status"].as_str() == Some("not_performed") {
+        untested.push(format!(
+            "The consistency checks were not performed: {}.",
+            checks["reason"].as_str().unwrap_or("no reason recorded")
+        ));
+    }
+    if checks["variance"]["status"].as_str() == Some("not_possible") {
+        untested.push(format!(
+            "Variance checks not possible: {}.",
+            checks["variance"]["reason"]
+                .as_str()
+                .unwrap_or("no reason recorded")
+        ));
+    }
+    for c in checks["observables"].as_array().into_iter().flatten() {
+        let name = c["name"].as_str().unwrap_or("?");
+        if c["ideal_reference"].is_null() {
+            untested.push(format!(
+                "{name}: no ideal reference trace, so the offset of the mean from the ideal \
+                 model could not be tested."
+            ));
+        }
+        match c["t0"]["status"].as_str() {
+            Some("no_time_zero") => untested.push(format!(
+                "{name}: the run records no t = 0, so preparation and measurement errors could \
+                 not be tested where no Hamiltonian error has acted."
+            )),
+            Some("checked") if c["t0"]["rejected"] == true => untested.push(format!(
+                "{name}: FLAG at t = 0: the data fail a test where no Hamiltonian error has \
+                 acted, which points to preparation or measurement errors (not covered)."
+            )),
+            _ => {}
+        }
+    }
+    match view.verdict_status.as_str() {
+        "inconsistent" => untested.push(format!(
+            "VERDICT INCONSISTENT: {} The intervals hold only if the noise record is right.",
+            view.verdict_text
+        )),
+        "not_tested" => untested.push(format!(
+            "Verdict not tested: {} The noise record is taken on trust.",
+            view.verdict_text
+        )),
+        _ => {}
+    }
+
+    let statements = view
+        .observables
+        .iter()
+        .map(|o| {
+            let lc = o
+                .statement_used
+                .iter()
+                .filter(|s| *s == "light_cone")
+                .count();
+            let n = o.statement_used.len();
+            match lc {
+                0 => format!("{}: the global statement at all {n} times.", o.name),
+                k if k == n => format!("{}: the light-cone statement at all {n} times.", o.name),
+                k => format!(
+                    "{}: the light-cone statement at {k} of {n} times, the global one at the \
+                     others (the smaller of the two at each time).",
+                    o.name
+                ),
+            }
+        })
+        .collect();
+    Explanation {
+        claim,
+        assumptions: strings(&body["assumptions"]),
+        untested,
+        not_covered: strings(&body["not_covered"]),
+        statements,
+        gains: gains(view),
+        verdict_status: view.verdict_status.clone(),
+        verdict_text: view.verdict_text.clone(),
+    }
+}
+
+fn num_json(x: f64) -> Value {
+    if x.is_finite() {
+        json!(x)
+    } else if x.is_nan() {
+        Value::Null
+    } else {
+        json!("unbounded")
+    }
+}
+
+impl Explanation {
+    /// The explanation as data.
+    pub fn to_json(&self) -> Value {
+        json!({
+            "claim": self.claim,
+            "assumptions": self.assumptions,
+            "not_tested": self.untested,
+            "not_covered": self.not_covered,
+            "statements": self.statements,
+            "gain": self.gains.iter().map(|g| json!({
+                "observable": g.observable, "time": g.time, "e_avg": g.e_avg,
+                "e_wc": num_json(g.e_wc), "gain": num_json(g.gain),
+            })).collect::<Vec<_>>(),
+            "verdict": { "status": self.verdict_status, "text": self.verdict_text },
+        })
+    }
+
+    /// The explanation as text for a referee.
+    pub fn to_text(&self, time_unit: &str) -> String {
+        let mut s = String::new();
+        let list = |s: &mut String, title: &str, items: &[String]| {
+            s.push_str(title);
+            s.push('\n');
+            if items.is_empty() {
+                s.push_str("  (none)\n");
+            }
+            for i in items {
+                s.push_str("  - ");
+                s.push_str(i);
+                s.push('\n');
+            }
+        };
+        list(&mut s, "What is claimed:", &self.claim);
+        list(
+            &mut s,
+            "Assumed (not tested by the tool unless said below):",
+            &self.assumptions,
+        );
+        list(
+            &mut s,
+            "What the data could not test, and flags:",
+            &self.untested,
+        );
+        list(
+            &mut s,
+            "Not covered by the model at all:",
+            &self.not_covered,
+        );
+        list(&mut s, "Which bound was used:", &self.statements);
+        s.push_str(
+            "Gain of the stochastic statement over the worst case (at each observable's worst \
+             time):\n",
+        );
+        for g in &self.gains {
+            let gain = if g.gain.is_infinite() {
+                "unbounded (the worst case is infinite)".to_string()
+            } else if g.gain.is_nan() {
+                "- (E_avg = 0)".to_string()
+            } else {
+                format!("{:.3}x", g.gain)
+            };
+            s.push_str(&format!(
+                "  - {}: at t = {} {time_unit}, worst case {} vs E_avg {}: {gain}\n",
+                g.observable,
+                g.time,
+                if g.e_wc.is_finite() {
+                    format!("{}", g.e_wc)
+                } else {
+                    "unbounded".into()
+                },
+                g.e_avg
+            ));
+        }
+        s.push_str(&format!(
+            "Verdict: {} — {}\n",
+            self.verdict_status, self.verdict_text
+        ));
+        s
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn body(verdict: &str) -> Value {
+        json!({
+            "run": { "times": [0.0, 1.0, 2.0], "time_unit": "us", "n_realizations": 1 },
+            "observables": [
+                { "name": "A", "e_avg": [0.0, 0.1, 0.2], "e_shot": [0.01, 0.01, 0.01],
+                  "e_wc": [0.0, 0.5, "unbounded"], "e_one": [0.0, 0.2, 0.3],
+                  "statement_used": ["global", "light_cone", "light_cone"],
+                  "shot_term": "normal approximation from standard errors (approximate)" },
+                { "name": "B", "e_avg": [0.0, 0.05, 0.4], "e_shot": [0.02, 0.02, 0.02],
+                  "e_wc": [0.0, 0.3, 1.0], "e_one": [0.0, 0.1, 0.5],
+                  "statement_used": ["global", "global", "global"],
+                  "shot_term": "hoeffding from shot counts" }
+            ],
+            "checks": { "status": "performed", "variance": { "status": "not_possible",
+                        "reason": "one realization" },
+                        "observables": [ { "name": "A", "ideal_reference": null,
+                                           "t0": { "status": "checked", "rejected": true } } ] },
+            "verdict": { "status": verdict, "text": "words" },
+        })
+    }
+
+    #[test]
+    fn a_claim_just_above_every_half_width_is_supported_and_just_below_is_not() {
+        let v = read_view(&body("consistent")).unwrap();
+        // Largest half-width: B at t = 2, 0.4 + 0.02 = 0.42.
+        let yes = check_claim(&v, 0.42 + 1e-12, None, None).unwrap();
+        assert!(yes.supported, "{}", yes.reason);
+        assert_eq!(yes.largest.as_ref().unwrap().observable, "B");
+        let no = check_claim(&v, 0.42 - 1e-12, None, None).unwrap();
+        assert!(!no.supported);
+        assert_eq!(no.first_excess.as_ref().unwrap().time_index, 2);
+        // Restricting the observable or the time changes the answer.
+        assert!(check_claim(&v, 0.22, Some("A"), None).unwrap().supported);
+        assert!(check_claim(&v, 0.12, None, Some(1.5)).unwrap().supported);
+        assert!(check_claim(&v, 0.1, Some("C"), None).is_err());
+        assert!(check_claim(&v, 0.1, None, Some(-1.0)).is_err());
+    }
+
+    #[test]
+    fn an_inconsistent_verdict_supports_no_claim() {
+        let v = read_view(&body("inconsistent")).unwrap();
+        let a = check_claim(&v, 10.0, None, None).unwrap();
+        assert!(a.numbers_support && !a.supported);
+        assert!(a.reason.contains("inconsistent"));
+    }
+
+    #[test]
+    fn the_explanation_names_what_could_not_be_tested() {
+        let b = body("not_tested");
+        let v = read_view(&b).unwrap();
+        let e = explain(&b, &v);
+        let all = e.untested.join("\n");
+        for needle in [
+            "One realization",
+            "normal approximation",
+            "no ideal reference",
+            "t = 0",
+        ] {
+            assert!(all.contains(needle), "{needle}: {all}");
+        }
+        assert!(e.statements[0].contains("light-cone statement at 2 of 3"));
+        // Gain at the worst time: A's worst time is t = 2 where e_wc is unbounded.
+        assert!(e.gains[0].gain.is_infinite());
+        assert!((e.gains[1].gain - 1.0 / 0.4).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_short_column_is_a_problem_with_its_pointer() {
+        let mut b = body("consistent");
+        b["observables"][1]["e_shot"] = json!([0.1]);
+        let p = read_view(&b).unwrap_err();
+        assert_eq!(p[0].path, "/body/observables/1/e_shot");
+    }
+}
