@@ -7,5 +7,6 @@ mod certify;
 mod light_cone;
 mod noise_record;
 mod rehearsal;
+mod report;
 mod run_file;
 mod simulate;

@@ -80,9 +80,12 @@ pub struct CertifyArgs {
     /// Print the summary as JSON on standard output instead of a table.
     #[arg(long)]
     pub json: bool,
-    /// Replace an existing certificate.
+    /// Replace an existing certificate (and report).
     #[arg(long)]
     pub force: bool,
+    /// Also write a self-contained HTML report with plots of the certificate.
+    #[arg(long, value_name = "REPORT.html")]
+    pub report: Option<PathBuf>,
 }
 
 /// `quassay verify CERT.json`.

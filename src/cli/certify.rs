@@ -47,6 +47,9 @@ pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
         .unwrap_or_else(|| default_output(&args.run));
     // Refuse early, before any work, if the certificate exists; checked again at the rename.
     check_free(&output, args.force)?;
+    if let Some(report) = &args.report {
+        check_free(report, args.force)?;
+    }
     let options = CertifyOptions {
         confidence: args.confidence,
         simultaneity: if args.pointwise {
@@ -65,6 +68,9 @@ pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
     let computed = computed?;
     let cert = Certificate::seal(computed.body.clone(), envelope_now())?;
     write_bytes(&output, args.force, cert.to_file_text().as_bytes())?;
+    if let Some(report) = &args.report {
+        super::report::write_report(&cert, &output, report, args.force)?;
+    }
     let mut notes = Vec::new();
     if !(run_below && noise_below) {
         notes.push(

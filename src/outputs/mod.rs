@@ -6,5 +6,6 @@
 
 pub mod atomic;
 pub mod noise_record;
+pub mod report;
 pub mod run_file;
 pub mod truth_file;
