@@ -1,0 +1,223 @@
+//! Integration tests for `quassay budget` (bounds.md §7).
+//!
+//! * Against `certify`: the largest scale factor λ that `budget` returns for the bundled
+//!   invented example `example_runs/chain12` is written into a noise record (amplitude × λ),
+//!   the example's run is certified with it, and the certified global half-width
+//!   `e_avg_global + e_shot` at the planned time equals the target within the bisection
+//!   tolerance. The two programs share the §3 formulas but not the search, the expansion of
+//!   the record (done by certify from the edited file) or the confidence split.
+//! * The √M law: the gain of the single-evolution answer over the worst case, fitted on a
+//!   log-log scale over M = 10 … 10^4 sources, has exponent 1/2 within 0.05 (bounds.md §3: the
+//!   fluctuation grows like √M, the worst case like M).
+
+use serde_json::Value;
+
+use crate::util::{quassay, repo, scratch};
+
+fn budget(args: &[&str]) -> Value {
+    let noise = repo().join("example_runs/chain12/noise.json");
+    let out = quassay()
+        .arg("budget")
+        .arg("--noise")
+        .arg(&noise)
+        .args(["--time-unit", "us", "--spectrum", "-1,1", "--json"])
+        .args(args)
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+#[test]
+fn the_planned_scale_gives_the_target_error_when_certified() {
+    // 21 times x 3 observables = 63 points, 40 realizations of 1000 shots (the example).
+    let target = 0.2;
+    let j = budget(&[
+        "--lattice",
+        "chain:12",
+        "--target",
+        "0.2",
+        "--time",
+        "1",
+        "--points",
+        "63",
+        "--realizations",
+        "40",
+        "--shots",
+        "1000",
+    ]);
+    let a = &j["scale"]["averaged"]["stochastic"];
+    assert_eq!(a["status"], "found");
+    let lambda = a["value"].as_f64().unwrap();
+    assert!(lambda > 1.0, "λ = {lambda}");
+    let wc = j["scale"]["averaged"]["worst_case"]["value"]
+        .as_f64()
+        .unwrap();
+    assert!(wc < lambda);
+
+    let dir = scratch();
+    let src = repo().join("example_runs/chain12");
+    std::fs::copy(src.join("run.h5"), dir.path().join("run.h5")).unwrap();
+    let mut rec: Value =
+        serde_json::from_str(&std::fs::read_to_string(src.join("noise.json")).unwrap()).unwrap();
+    let amp = rec["sources"][0]["amplitude"].as_f64().unwrap();
+    rec["sources"][0]["amplitude"] = serde_json::json!(amp * lambda);
+    let noise = dir.path().join("noise.json");
+    std::fs::write(&noise, serde_json::to_string(&rec).unwrap()).unwrap();
+    let out = quassay()
+        .arg("certify")
+        .arg(dir.path().join("run.h5"))
+        .arg("--noise")
+        .arg(&noise)
+        .output()
+        .unwrap();
+    // 0: consistent; 3: the record was judged inconsistent, the certificate is still written.
+    assert!(matches!(out.status.code(), Some(0 | 3)));
+    let cert: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("run.cert.json")).unwrap())
+            .unwrap();
+    let body = &cert["body"];
+    let k = body["run"]["times"].as_array().unwrap().len() - 1; // t = 1 us
+    assert_eq!(body["run"]["times"][k].as_f64().unwrap(), 1.0);
+    for o in body["observables"].as_array().unwrap() {
+        let hw = o["e_avg_global"][k].as_f64().unwrap() + o["e_shot"][k].as_f64().unwrap();
+        // Bisection tolerance 1e-10 relative in λ; the error is about linear in λ.
+        assert!(
+            (hw - target).abs() < 1e-8 * target,
+            "{}: certified {hw} vs target {target}",
+            o["name"]
+        );
+    }
+}
+
+#[test]
+fn the_gain_of_a_single_evolution_grows_like_the_square_root_of_the_sources() {
+    let j = budget(&[
+        "--lattice",
+        "chain:10",
+        "--target",
+        "0.05",
+        "--time",
+        "1",
+        "--sizes",
+        "10,31,100,316,1000,3162,10000",
+    ]);
+    let rows = j["table"].as_array().unwrap();
+    let pts: Vec<(f64, f64)> = rows
+        .iter()
+        .map(|r| {
+            (
+                r["sources"].as_f64().unwrap(),
+                r["single"]["gain"].as_f64().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(pts.len(), 7);
+    // Least-squares slope of ln(gain) against ln(M), computed here.
+    let n = pts.len() as f64;
+    let mx = pts.iter().map(|p| p.0.ln()).sum::<f64>() / n;
+    let my = pts.iter().map(|p| p.1.ln()).sum::<f64>() / n;
+    let sxy: f64 = pts.iter().map(|p| (p.0.ln() - mx) * (p.1.ln() - my)).sum();
+    let sxx: f64 = pts.iter().map(|p| (p.0.ln() - mx).powi(2)).sum();
+    let slope = sxy / sxx;
+    assert!((slope - 0.5).abs() < 0.05, "slope {slope}: {pts:?}");
+    let reported = j["gain_exponent"]["single"].as_f64().unwrap();
+    assert!((reported - slope).abs() < 1e-9);
+    // Every gain is above 1 (the stochastic bound is never worse than the worst case).
+    assert!(pts.iter().all(|p| p.1 >= 1.0));
+}
+
+#[test]
+fn longest_time_and_largest_system_are_edges_of_the_target() {
+    let j = budget(&[
+        "--lattice",
+        "chain:12",
+        "--target",
+        "0.1",
+        "--time",
+        "1",
+        "--realizations",
+        "40",
+        "--shots",
+        "1000",
+        "--sizes",
+        "10",
+    ]);
+    // Global bounds depend on δ·t only, so at t = 1 the longest time equals the scale factor.
+    let s = j["scale"]["averaged"]["stochastic"]["value"]
+        .as_f64()
+        .unwrap();
+    let t = j["time_limit"]["averaged"]["stochastic"]["value"]
+        .as_f64()
+        .unwrap();
+    assert!((s - t).abs() < 1e-8 * s, "{s} {t}");
+    // The 12-site example at t = 1 exceeds 0.1 (certify: about 0.14), so the largest chain is
+    // shorter than 12, and the worst case allows fewer sites than the stochastic bound.
+    let n = j["size"]["averaged"]["stochastic"]["value"]
+        .as_f64()
+        .unwrap();
+    let n_wc = j["size"]["averaged"]["worst_case"]["value"]
+        .as_f64()
+        .unwrap();
+    assert!((1.0..12.0).contains(&n) && n_wc <= n, "{n} {n_wc}");
+}
+
+#[test]
+fn impossible_targets_and_bad_options() {
+    // Below the shot term: no scale works.
+    let j = budget(&[
+        "--lattice",
+        "chain:12",
+        "--target",
+        "0.001",
+        "--time",
+        "1",
+        "--realizations",
+        "1",
+        "--shots",
+        "100",
+        "--sizes",
+        "10",
+    ]);
+    assert_eq!(j["scale"]["averaged"]["stochastic"]["status"], "infeasible");
+    let noise = repo().join("example_runs/chain12/noise.json");
+    for bad in [
+        vec!["--lattice", "ring:5"],
+        vec!["--lattice", "square:3x"],
+        vec!["--lattice", "chain:12", "--spectrum", "1,-1"],
+        vec!["--lattice", "chain:12", "--target", "0"],
+        vec!["--lattice", "chain:12", "--time-unit", "hours"],
+        vec!["--lattice", "chain:12", "--confidence", "1"],
+    ] {
+        let mut base = vec![
+            "--time-unit",
+            "us",
+            "--spectrum",
+            "-1,1",
+            "--target",
+            "0.1",
+            "--time",
+            "1",
+        ];
+        // A later repetition of an option would be refused by clap; replace instead.
+        for pair in bad.chunks(2) {
+            if let Some(i) = base.iter().position(|a| *a == pair[0]) {
+                base[i + 1] = pair[1];
+            } else {
+                base.extend_from_slice(pair);
+            }
+        }
+        quassay()
+            .arg("budget")
+            .arg("--noise")
+            .arg(&noise)
+            .args(&base)
+            .assert()
+            .code(2);
+    }
+}
