@@ -88,7 +88,7 @@ pub(crate) fn figure(
          the certified interval [lower, upper] = mean ∓ (E_avg + E_shot) at confidence {conf} \
          ({statement}; dark band); and the worst-case interval mean ∓ (E_wc + E_shot), clipped \
          to the spectrum [{lo}, {hi}] of the observable (light band; E_wc holds with \
-         probability 1, E_shot is the certificate's shot term).",
+         probability 1, E_shot is the certificate's shot term).{unbounded}",
         name = escape(&o.name),
         ideal = if ideal.is_some() {
             ", the run's ideal-model trace (long dashes, open circles)"
@@ -99,6 +99,14 @@ pub(crate) fn figure(
         statement = escape(&d.statement),
         lo = o.spectrum[0],
         hi = o.spectrum[1],
+        unbounded = match o.e_wc.iter().filter(|x| x.is_infinite()).count() {
+            0 => String::new(),
+            n => format!(
+                " E_wc is unbounded at {n} of {} times (a noise law of unbounded support), so \
+                 the light band there is the whole spectrum.",
+                o.e_wc.len()
+            ),
+        },
     );
     Ok((svg, caption))
 }
