@@ -37,6 +37,7 @@ pub fn write_file(path: &Path, force: bool, write: impl FnOnce(&Path) -> Result<
         })?;
     // The temporary file is removed when `tmp` is dropped, on success or failure of `write`.
     write(tmp.path())?;
+    make_readable(tmp.path());
     let result = if force {
         tmp.persist(path).map(|_| ())
     } else {
@@ -54,6 +55,18 @@ pub fn write_file(path: &Path, force: bool, write: impl FnOnce(&Path) -> Result<
             }
         }
     })
+}
+
+/// Temporary files are created readable by their owner only; outputs are meant to be shared
+/// (certificates, reports, runs), so they get the usual `rw-r--r--` before the rename.
+fn make_readable(path: &Path) {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        let _ = std::fs::set_permissions(path, std::fs::Permissions::from_mode(0o644));
+    }
+    #[cfg(not(unix))]
+    let _ = path;
 }
 
 /// Writes bytes to `path` atomically (see [`write_file`]).
@@ -93,6 +106,9 @@ pub fn write_files(
             message: format!("cannot create a temporary folder: {e}"),
         })?;
     write(tmp.path())?;
+    for name in names {
+        make_readable(&tmp.path().join(name));
+    }
     let mut moved = Vec::new();
     for (name, fin) in names.iter().zip(&finals) {
         let from = tmp.path().join(name);
@@ -142,6 +158,12 @@ mod tests {
         write_bytes(&target, true, b"new").unwrap();
         assert_eq!(std::fs::read(&target).unwrap(), b"new");
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1);
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            let mode = std::fs::metadata(&target).unwrap().permissions().mode();
+            assert_eq!(mode & 0o777, 0o644, "outputs are readable by others");
+        }
     }
 
     #[test]
