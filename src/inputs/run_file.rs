@@ -228,15 +228,7 @@ impl RunStream {
         sink: &mut dyn ContentSink,
         mut visit: impl FnMut(ObservableRead),
     ) -> Result<RunOutline> {
-        let (outline, inspection) = self.finish(false, sink, &mut visit);
-        match outline {
-            Some(o) if inspection.problems.is_empty() => Ok(o),
-            _ => Err(Error::Input {
-                kind: InputKind::Run,
-                file: inspection.file,
-                problems: inspection.problems,
-            }),
-        }
+        self.read_checked(false, sink, &mut visit)
     }
 
     /// As [`RunStream::read_observables`], but each observable is handed to `visit` whole
@@ -247,7 +239,17 @@ impl RunStream {
         sink: &mut dyn ContentSink,
         mut visit: impl FnMut(ObservableRead),
     ) -> Result<RunOutline> {
-        let (outline, inspection) = self.finish(true, sink, &mut visit);
+        self.read_checked(true, sink, &mut visit)
+    }
+
+    /// Reads the observables (kept whole or not) and turns any problem into [`Error::Input`].
+    fn read_checked(
+        self,
+        keep: bool,
+        sink: &mut dyn ContentSink,
+        visit: &mut dyn FnMut(ObservableRead),
+    ) -> Result<RunOutline> {
+        let (outline, inspection) = self.finish(keep, sink, visit);
         match outline {
             Some(o) if inspection.problems.is_empty() => Ok(o),
             _ => Err(Error::Input {
