@@ -340,6 +340,22 @@ impl<'a> CheckPlan<'a> {
         points_bounds: &[PointBounds],
         sensitivities: Option<&[Vec<f64>]>,
     ) -> ObservableChecks {
+        self.observable_with_variance(o, mean, points_bounds, sensitivities, None)
+    }
+
+    /// As [`CheckPlan::observable`], with a second upper bound per time on the Efron–Stein
+    /// variance of one draw (`Σ δ_i² σ_i² e_i²` before the realization rule, e.g. the
+    /// light-cone one of `bounds::local`): `V_noise` is the smaller of the two. Both bound the
+    /// same variance for every admissible record and are fixed before the data are seen, so
+    /// their minimum is a valid bound, and the test stays valid (docs/method.md §5).
+    pub fn observable_with_variance(
+        &self,
+        o: &Observable,
+        mean: &[f64],
+        points_bounds: &[PointBounds],
+        sensitivities: Option<&[Vec<f64>]>,
+        other_v_noise: Option<&[f64]>,
+    ) -> ObservableChecks {
         let r = self.realizations;
         let mut points = Vec::with_capacity(self.times.len());
         if self.not_performed.is_none() {
@@ -349,9 +365,13 @@ impl<'a> CheckPlan<'a> {
                     None => global_sensitivities(self.sources.len(), o.spread(), t),
                 };
                 let column: Vec<f64> = o.values.column(k).iter().copied().collect();
+                // The smaller of two upper bounds on the same variance (see above);
+                // `noise_variance` is 0 unless the noise is redrawn every realization.
+                let v_noise = noise_variance(self.redrawn, self.sources, &sens);
+                let other = other_v_noise.and_then(|v| v.get(k)).copied();
+                let v_noise = other.map_or(v_noise, |x| v_noise.min(x));
                 let variance = (r >= 2).then(|| {
-                    let mut v =
-                        variance_test(o, k, &column, self.redrawn, self.sources, &sens, self.gamma);
+                    let mut v = variance_test(o, k, &column, v_noise, self.gamma);
                     v.std_lower_distribution_free = maurer_pontil::std_lower_bound(
                         v.sample_variance.sqrt(),
                         r,
@@ -435,14 +455,11 @@ fn variance_test(
     o: &Observable,
     k: usize,
     column: &[f64],
-    redrawn: Redrawn,
-    sources: &[SourceData],
-    sens: &[f64],
+    v_noise: f64,
     gamma: f64,
 ) -> VarianceTest {
     let r = column.len();
     let (mean, var) = mean_and_variance(column).unwrap_or((f64::NAN, f64::NAN));
-    let v_noise = noise_variance(redrawn, sources, sens);
     let (v_shot, interval, approximate, gamma_used) = match &o.stderr {
         Some(se) => {
             let col: Vec<f64> = se.column(k).iter().copied().collect();
@@ -784,7 +801,8 @@ impl ChecksReport {
                 "statistic": "(R - 1) s^2 / (v_noise + v_shot) against chi-square with R - 1 \
                               degrees of freedom (upper tail; assumes normal realization values)",
                 "degrees_of_freedom": self.realizations.saturating_sub(1),
-                "v_noise": "Efron-Stein: sum over sources of (delta sigma e)^2, e = s_O t; \
+                "v_noise": "Efron-Stein: sum over sources of (delta sigma e)^2, e = s_O t, \
+                            or the light-cone e = s_O T(t) where that sum is smaller; \
                             0 unless the noise is redrawn every realization",
                 "v_shot": "Bhatia-Davis: max over the mean interval of (max - x)(x - min), \
                            times the mean of 1/shots",
