@@ -105,6 +105,18 @@ pub fn systematic(sources: &[SourceData], sens: &[f64]) -> f64 {
 /// Rounding: each `ln φ` errs upward or by an ulp (see [`family`]); the result is not capped
 /// here (callers cap at `s_O`).
 pub fn bias_global(sources: &[SourceData], s_o: f64, t: f64) -> f64 {
+    bias_from_ln_sum(s_o, bias_ln_sum(sources, t))
+}
+
+/// `E_bias` from `Σ_i ln φ(2tδ_i)` ([`bias_ln_sum`], which does not depend on the
+/// observable): `(s_O/2)·expm1(ln_sum)`, the last step of [`bias_global`].
+pub fn bias_from_ln_sum(s_o: f64, ln_sum: f64) -> f64 {
+    0.5 * s_o * ln_sum.exp_m1()
+}
+
+/// `Σ_i ln φ(2tδ_i)` in instance order, the observable-independent part of [`bias_global`]
+/// (callers with many observables per time compute it once per time).
+pub fn bias_ln_sum(sources: &[SourceData], t: f64) -> f64 {
     let mut ln_sum = 0.0;
     // Runs of instances with the same family and δ (the usual case: one source expanded per
     // site) reuse the last value of ln φ; the value and the order of summation are unchanged,
@@ -121,7 +133,7 @@ pub fn bias_global(sources: &[SourceData], s_o: f64, t: f64) -> f64 {
             ln_sum += v;
         }
     }
-    0.5 * s_o * ln_sum.exp_m1()
+    ln_sum
 }
 
 /// Route G: `L = √(Σ δ_i² κ_i² e_i²)`, `r = L √(2 ln(2/p))`; `None` if an active source has
@@ -231,6 +243,111 @@ pub fn fluctuation(sources: &[SourceData], sens: &[f64], p: f64) -> Fluctuation 
             value: f64::INFINITY,
             route: None,
         },
+    }
+}
+
+/// The route constants of [`fluctuation`] at fixed sensitivities, so that `r(p)` at any `p`
+/// is a closed-form rescaling (a logarithm and a square root or two):
+/// `r_G(p) = L √(2 ln(2/p))`, `r_D(p) = C √(ln(2/p)/2)`, mixed `r_G(p/2) + r_D(p/2)`.
+/// [`FluctuationScale::at`] gives the value of [`fluctuation`] bit for bit (the same
+/// operations in the same order).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FluctuationScale {
+    /// `L = √(Σ δ_i² κ_i² e_i²)` of route G; `None` if an active source has no κ.
+    pub gaussian: Option<f64>,
+    /// `C = √(Σ c_i²)` of route D; `None` if an active source is unbounded.
+    pub bounded_differences: Option<f64>,
+    /// `(L, C)` of the two candidates of the mixed route (sources with both constants all in
+    /// the Gaussian group, then all in the bounded-difference group); only computed when
+    /// neither G nor D applies, `None` then if no route applies.
+    pub mixed: Option<[(f64, f64); 2]>,
+}
+
+/// The route constants of the sources at sensitivities `sens` (see [`FluctuationScale`]).
+pub fn fluctuation_scale(sources: &[SourceData], sens: &[f64]) -> FluctuationScale {
+    let gaussian = gaussian_l2(sources.iter().zip(sens.iter().copied())).map(f64::sqrt);
+    let bounded_differences = width_c2(sources.iter().zip(sens.iter().copied())).map(f64::sqrt);
+    let mixed = if gaussian.is_none() && bounded_differences.is_none() {
+        mixed_constants(sources, sens)
+    } else {
+        None
+    };
+    FluctuationScale {
+        gaussian,
+        bounded_differences,
+        mixed,
+    }
+}
+
+/// The `(L, C)` pairs of [`route_mixed`]'s two candidates.
+fn mixed_constants(sources: &[SourceData], sens: &[f64]) -> Option<[(f64, f64); 2]> {
+    let mut out = [(0.0, 0.0); 2];
+    for (slot, both_to_gaussian) in out.iter_mut().zip([true, false]) {
+        let mut l2 = 0.0;
+        let mut c2 = 0.0;
+        for (s, &e) in sources.iter().zip(sens) {
+            if !active(s, e) {
+                continue;
+            }
+            let kappa = s.constants.kappa;
+            let finite = s.constants.width.is_finite();
+            let to_gaussian = match (kappa, finite) {
+                (Some(_), true) => both_to_gaussian,
+                (Some(_), false) => true,
+                (None, true) => false,
+                (None, false) => return None,
+            };
+            if to_gaussian {
+                let term = s.delta * kappa.unwrap_or(0.0) * e;
+                l2 += term * term;
+            } else {
+                let c = s.delta * s.constants.width * e;
+                c2 += c * c;
+            }
+        }
+        *slot = (l2.sqrt(), c2.sqrt());
+    }
+    Some(out)
+}
+
+impl FluctuationScale {
+    /// `r(p)` and its route: [`fluctuation`] at the sensitivities this was made from.
+    pub fn at(&self, p: f64) -> Fluctuation {
+        if p.is_nan() || p <= 0.0 {
+            return Fluctuation {
+                value: f64::INFINITY,
+                route: None,
+            };
+        }
+        let g = self.gaussian.map(|l| l * (2.0 * (2.0 / p).ln()).sqrt());
+        let d = self
+            .bounded_differences
+            .map(|c| c * (0.5 * (2.0 / p).ln()).sqrt());
+        let pick = match (g, d) {
+            (Some(g), Some(d)) if d < g => Some((d, FluctuationRoute::BoundedDifferences)),
+            (Some(g), _) => Some((g, FluctuationRoute::Gaussian)),
+            (None, Some(d)) => Some((d, FluctuationRoute::BoundedDifferences)),
+            (None, None) => self.mixed.map(|candidates| {
+                let half = 0.5 * p;
+                let mut best: Option<f64> = None;
+                for (l, c) in candidates {
+                    let r =
+                        l * (2.0 * (2.0 / half).ln()).sqrt() + c * (0.5 * (2.0 / half).ln()).sqrt();
+                    best = Some(best.map_or(r, |b: f64| b.min(r)));
+                }
+                (best.unwrap_or(f64::INFINITY), FluctuationRoute::Mixed)
+            }),
+        };
+        match pick {
+            Some((value, route)) => Fluctuation {
+                value,
+                route: Some(route),
+            },
+            None => Fluctuation {
+                value: f64::INFINITY,
+                route: None,
+            },
+        }
     }
 }
 
@@ -385,8 +502,9 @@ pub fn evaluate_point(inp: &PointInputs) -> PointBounds {
     }
 }
 
-/// `min(s_O, E_wc, rest)`, with NaN treated as no information (∞).
-fn cap(s_o: f64, e_wc: f64, rest: f64) -> f64 {
+/// `min(s_O, E_wc, rest)`, with NaN treated as no information (∞): how [`evaluate_point`]
+/// caps `E_1` and `E_avg`, for callers that rebuild one of them from its terms.
+pub fn cap(s_o: f64, e_wc: f64, rest: f64) -> f64 {
     let rest = if rest.is_nan() { f64::INFINITY } else { rest };
     s_o.min(e_wc).min(rest)
 }
@@ -678,6 +796,54 @@ mod tests {
                     last = Some(b);
                 }
             }
+        }
+    }
+
+    /// The route constants rescale to `fluctuation` bit for bit, for every route (G, D,
+    /// mixed, none), at zero and non-zero sensitivities and across ten decades of p.
+    #[test]
+    fn the_fluctuation_scale_reproduces_fluctuation_at_every_p() {
+        let bounded_without_kappa = source(
+            Family::Bounded {
+                lower: -1.0,
+                upper: 2.0,
+                std: 0.7,
+                symmetric: false,
+            },
+            0.01,
+            0.0,
+        );
+        let mut no_route = mixed_sources();
+        no_route[1].constants.width = f64::INFINITY;
+        no_route[1].constants.kappa = None;
+        let cases: Vec<Vec<SourceData>> = vec![
+            vec![uniform(0.02); 5],
+            vec![source(Family::Normal { sigma: 0.5 }, 0.01, 0.1); 3],
+            vec![bounded_without_kappa, uniform(0.01)],
+            mixed_sources(),
+            no_route,
+        ];
+        let mut routes = Vec::new();
+        for src in &cases {
+            for &t in &[0.0, 0.3, 2.0] {
+                let sens = global_sensitivities(src.len(), 2.0, t);
+                let scale = fluctuation_scale(src, &sens);
+                for &p in &[1.0, 0.5, 0.05, 1e-3, 1e-9, 1e-300, 0.0, f64::NAN] {
+                    let want = fluctuation(src, &sens, p);
+                    let got = scale.at(p);
+                    assert_eq!(got.route, want.route, "t={t} p={p}");
+                    assert_eq!(got.value.to_bits(), want.value.to_bits(), "t={t} p={p}");
+                    routes.push(want.route);
+                }
+            }
+        }
+        for r in [
+            Some(FluctuationRoute::Gaussian),
+            Some(FluctuationRoute::BoundedDifferences),
+            Some(FluctuationRoute::Mixed),
+            None,
+        ] {
+            assert!(routes.contains(&r), "{r:?} not exercised");
         }
     }
 

@@ -15,6 +15,7 @@
 use std::fmt::Write;
 
 use serde_json::Value;
+use sha2::{Digest, Sha256};
 
 /// Why a value has no canonical form.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
@@ -28,9 +29,12 @@ pub enum CanonicalError {
 
 /// The RFC 8785 canonical form of `v`.
 pub fn to_canonical_json(v: &Value) -> Result<String, CanonicalError> {
-    let mut out = String::new();
-    write_value(v, &mut out, &mut String::new())?;
-    Ok(out)
+    let mut out = Out {
+        buf: String::new(),
+        hasher: None,
+    };
+    write_value(v, &mut out).map_err(|NonFinite| non_finite_error(v))?;
+    Ok(out.buf)
 }
 
 /// The UTF-8 bytes of the canonical form (what is hashed).
@@ -38,60 +42,92 @@ pub fn to_canonical_bytes(v: &Value) -> Result<Vec<u8>, CanonicalError> {
     to_canonical_json(v).map(String::into_bytes)
 }
 
-fn write_value(v: &Value, out: &mut String, pointer: &mut String) -> Result<(), CanonicalError> {
+/// Lowercase hexadecimal SHA-256 of the canonical form of `v`, computed while the form is
+/// written (in 64 KiB pieces: the whole form is never held in memory).
+pub fn canonical_sha256_hex(v: &Value) -> Result<String, CanonicalError> {
+    let mut out = Out {
+        buf: String::with_capacity(FLUSH_BYTES + 4096),
+        hasher: Some(Sha256::new()),
+    };
+    write_value(v, &mut out).map_err(|NonFinite| non_finite_error(v))?;
+    let mut hasher = out.hasher.take().unwrap_or_default();
+    hasher.update(out.buf.as_bytes());
+    Ok(super::hash::hex(&hasher.finalize()))
+}
+
+/// Bytes written before they are handed to the hasher.
+const FLUSH_BYTES: usize = 1 << 16;
+
+/// The canonical text being written: kept whole, or hashed in pieces.
+struct Out {
+    buf: String,
+    hasher: Option<Sha256>,
+}
+
+impl Out {
+    fn push_str(&mut self, s: &str) {
+        self.buf.push_str(s);
+    }
+    fn push(&mut self, c: char) {
+        self.buf.push(c);
+    }
+    /// Hands the text so far to the hasher, if hashing (called between values).
+    fn maybe_flush(&mut self) {
+        if self.buf.len() >= FLUSH_BYTES {
+            if let Some(h) = self.hasher.as_mut() {
+                h.update(self.buf.as_bytes());
+                self.buf.clear();
+            }
+        }
+    }
+}
+
+/// A non-finite number was met (where is found afterwards, see [`non_finite_error`]).
+struct NonFinite;
+
+/// The number as a double, as RFC 8785 §3.2.2.3 reads it.
+fn as_double(n: &serde_json::Number) -> f64 {
+    if let Some(u) = n.as_u64() {
+        u as f64 // round to nearest, ties to even (Rust `as` semantics)
+    } else if let Some(i) = n.as_i64() {
+        i as f64
+    } else {
+        n.as_f64().unwrap_or(f64::NAN)
+    }
+}
+
+fn write_value(v: &Value, out: &mut Out) -> Result<(), NonFinite> {
     match v {
         Value::Null => out.push_str("null"),
         Value::Bool(true) => out.push_str("true"),
         Value::Bool(false) => out.push_str("false"),
         Value::Number(n) => {
-            let x = if let Some(u) = n.as_u64() {
-                u as f64 // round to nearest, ties to even (Rust `as` semantics)
-            } else if let Some(i) = n.as_i64() {
-                i as f64
-            } else {
-                n.as_f64().unwrap_or(f64::NAN)
-            };
-            match number_to_string(x) {
-                Some(text) => out.push_str(&text),
-                None => {
-                    return Err(CanonicalError::NonFinite {
-                        pointer: pointer.clone(),
-                    })
-                }
+            if !write_number(as_double(n), &mut out.buf) {
+                return Err(NonFinite);
             }
         }
-        Value::String(s) => write_string(s, out),
+        Value::String(s) => write_string(s, &mut out.buf),
         Value::Array(items) => {
             out.push('[');
             for (i, item) in items.iter().enumerate() {
                 if i > 0 {
                     out.push(',');
                 }
-                let len = pointer.len();
-                let _ = write!(pointer, "/{i}");
-                write_value(item, out, pointer)?;
-                pointer.truncate(len);
+                write_value(item, out)?;
+                out.maybe_flush();
             }
             out.push(']');
         }
         Value::Object(map) => {
-            let mut members: Vec<(Vec<u16>, &String, &Value)> = map
-                .iter()
-                .map(|(k, v)| (k.encode_utf16().collect(), k, v))
-                .collect();
-            members.sort_by(|a, b| a.0.cmp(&b.0));
             out.push('{');
-            for (i, (_, k, v)) in members.into_iter().enumerate() {
-                if i > 0 {
-                    out.push(',');
+            if in_utf16_order(map) {
+                for (i, (k, v)) in map.iter().enumerate() {
+                    write_member(i, k, v, out)?;
                 }
-                write_string(k, out);
-                out.push(':');
-                let len = pointer.len();
-                pointer.push('/');
-                pointer.push_str(&k.replace('~', "~0").replace('/', "~1"));
-                write_value(v, out, pointer)?;
-                pointer.truncate(len);
+            } else {
+                for (i, (k, v)) in sorted_members(map).into_iter().enumerate() {
+                    write_member(i, k, v, out)?;
+                }
             }
             out.push('}');
         }
@@ -99,79 +135,294 @@ fn write_value(v: &Value, out: &mut String, pointer: &mut String) -> Result<(), 
     Ok(())
 }
 
-/// A string as `JSON.stringify` writes it (RFC 8785 §3.2.2.2).
-fn write_string(s: &str, out: &mut String) {
-    out.push('"');
-    for c in s.chars() {
-        match c {
-            '"' => out.push_str("\\\""),
-            '\\' => out.push_str("\\\\"),
-            '\u{08}' => out.push_str("\\b"),
-            '\u{09}' => out.push_str("\\t"),
-            '\u{0A}' => out.push_str("\\n"),
-            '\u{0C}' => out.push_str("\\f"),
-            '\u{0D}' => out.push_str("\\r"),
-            c if (c as u32) < 0x20 => {
-                let _ = write!(out, "\\u{:04x}", c as u32);
+fn write_member(i: usize, k: &str, v: &Value, out: &mut Out) -> Result<(), NonFinite> {
+    if i > 0 {
+        out.push(',');
+    }
+    write_string(k, &mut out.buf);
+    out.push(':');
+    write_value(v, out)?;
+    out.maybe_flush();
+    Ok(())
+}
+
+/// Whether the map's own iteration order is already the order of RFC 8785 §3.2.3 (UTF-16
+/// code units of the names). It is when the names come in strictly increasing byte order
+/// (code-point order, which serde_json's sorted map gives) and none holds a character at or
+/// above U+E000 (its UTF-8 lead byte is 0xEE or higher): below U+E000, UTF-16 code-unit order
+/// and code-point order agree; above, a supplementary character (a surrogate pair, 0xD800…)
+/// sorts before U+E000…U+FFFF in UTF-16 and after them in code-point order.
+fn in_utf16_order(map: &serde_json::Map<String, Value>) -> bool {
+    let mut last: Option<&str> = None;
+    for k in map.keys() {
+        if k.bytes().any(|b| b >= 0xEE) {
+            return false;
+        }
+        if let Some(prev) = last {
+            if prev.as_bytes() >= k.as_bytes() {
+                return false;
             }
-            c => out.push(c),
+        }
+        last = Some(k);
+    }
+    true
+}
+
+/// The members sorted by the UTF-16 code units of their names.
+fn sorted_members(map: &serde_json::Map<String, Value>) -> Vec<(&String, &Value)> {
+    let mut members: Vec<(Vec<u16>, &String, &Value)> = map
+        .iter()
+        .map(|(k, v)| (k.encode_utf16().collect(), k, v))
+        .collect();
+    members.sort_by(|a, b| a.0.cmp(&b.0));
+    members.into_iter().map(|(_, k, v)| (k, v)).collect()
+}
+
+/// The error for the first non-finite number in canonical order (a rare path: it walks the
+/// value again, keeping the JSON pointer, RFC 6901, as it goes).
+fn non_finite_error(v: &Value) -> CanonicalError {
+    fn find(v: &Value, pointer: &mut String) -> bool {
+        match v {
+            Value::Number(n) => !as_double(n).is_finite(),
+            Value::Array(items) => items.iter().enumerate().any(|(i, item)| {
+                let len = pointer.len();
+                let _ = write!(pointer, "/{i}");
+                let found = find(item, pointer);
+                if !found {
+                    pointer.truncate(len);
+                }
+                found
+            }),
+            Value::Object(map) => sorted_members(map).into_iter().any(|(k, item)| {
+                let len = pointer.len();
+                pointer.push('/');
+                pointer.push_str(&k.replace('~', "~0").replace('/', "~1"));
+                let found = find(item, pointer);
+                if !found {
+                    pointer.truncate(len);
+                }
+                found
+            }),
+            _ => false,
         }
     }
+    let mut pointer = String::new();
+    find(v, &mut pointer);
+    CanonicalError::NonFinite { pointer }
+}
+
+/// A string as `JSON.stringify` writes it (RFC 8785 §3.2.2.2): runs of characters that need
+/// no escape are copied whole.
+fn write_string(s: &str, out: &mut String) {
+    out.push('"');
+    let bytes = s.as_bytes();
+    let mut start = 0;
+    for (i, &b) in bytes.iter().enumerate() {
+        let escape = match b {
+            b'"' => "\\\"",
+            b'\\' => "\\\\",
+            0x08 => "\\b",
+            0x09 => "\\t",
+            0x0A => "\\n",
+            0x0C => "\\f",
+            0x0D => "\\r",
+            b if b < 0x20 => "",
+            _ => continue,
+        };
+        // Every byte matched above is ASCII, so `i` is a character boundary.
+        out.push_str(&s[start..i]);
+        if escape.is_empty() {
+            let _ = write!(out, "\\u{:04x}", b);
+        } else {
+            out.push_str(escape);
+        }
+        start = i + 1;
+    }
+    out.push_str(&s[start..]);
     out.push('"');
 }
 
 /// A finite double as ECMAScript's `Number.prototype.toString` writes it; `None` if not
 /// finite.
 pub fn number_to_string(x: f64) -> Option<String> {
-    if !x.is_finite() {
-        return None;
-    }
     let mut out = String::new();
+    write_number(x, &mut out).then_some(out)
+}
+
+/// A small stack buffer for formatted digits (no heap allocation per number).
+struct Digits {
+    buf: [u8; 40],
+    len: usize,
+}
+
+impl Write for Digits {
+    fn write_str(&mut self, s: &str) -> std::fmt::Result {
+        let end = self.len + s.len();
+        if end > self.buf.len() {
+            return Err(std::fmt::Error);
+        }
+        self.buf[self.len..end].copy_from_slice(s.as_bytes());
+        self.len = end;
+        Ok(())
+    }
+}
+
+/// The significant digits (ASCII, no point) and the decimal exponent of `{:e}` or `{:.Ne}`
+/// output for a positive finite `x`: `x ≈ 0.d₁d₂… × 10^n` is returned as `(digits, n)`.
+fn digits_of(formatted: &[u8]) -> Option<(&[u8], i32)> {
+    let e = formatted.iter().position(|&c| c == b'e')?;
+    let exp: i32 = std::str::from_utf8(&formatted[e + 1..])
+        .ok()?
+        .parse()
+        .ok()?;
+    Some((&formatted[..e], exp + 1))
+}
+
+/// Appends the ECMAScript form of `x` to `out`; `false` (nothing written) if `x` is not
+/// finite.
+///
+/// Digits: Rust's `{:e}` gives the shortest string that round-trips, and of those the one
+/// nearest to x; its length k is ECMAScript's (Number::toString step 5: k as small as
+/// possible, then the k-digit value nearest to x, ties to the even one). `{:e}` may pick the
+/// odd one of an exact tie (RFC 8785 Appendix B: 1424953923781206.25 → …206.2). A tie is
+/// detected exactly in integer arithmetic ([`tie_partner`]); then the even partner is taken
+/// if it reads back as x (both do, except at a power of two, where the rounding interval
+/// below x is half as wide: 2^-24 = 5.9604644775390625e-8 gives …063, as ECMAScript and
+/// Python do, since …062 reads back as another double).
+fn write_number(x: f64, out: &mut String) -> bool {
+    if !x.is_finite() {
+        return false;
+    }
     if x == 0.0 {
         out.push('0'); // also −0 (RFC 8785 §3.2.2.3)
-        return Some(out);
+        return true;
     }
     if x < 0.0 {
         out.push('-');
     }
-    // Shortest round-trip digit count k from `{:e}`; then the k-digit decimal nearest to x,
-    // ties to even, from Rust's exact formatting (ECMAScript's rule for choosing among
-    // k-digit candidates; `{:e}` alone may pick the other one of a tie, as for
-    // 1424953923781206.25 → …206.2, RFC 8785 Appendix B). The nearest k-digit decimal round-
-    // trips because the shortest one does and the round-trip interval contains x.
-    let shortest = format!("{:e}", x.abs());
-    let k = shortest
-        .split_once('e')?
-        .0
-        .chars()
-        .filter(|c| *c != '.')
-        .count();
-    let sci = format!("{:.*e}", k - 1, x.abs());
-    let (mantissa, exp) = sci.split_once('e')?;
-    let digits: String = mantissa.chars().filter(|c| *c != '.').collect();
-    let k = digits.len() as i32;
-    let n = exp.parse::<i32>().ok()? + 1;
+    let a = x.abs();
+    let mut shortest = Digits {
+        buf: [0; 40],
+        len: 0,
+    };
+    if write!(shortest, "{a:e}").is_err() {
+        return false;
+    }
+    let Some((mantissa, n)) = digits_of(&shortest.buf[..shortest.len]) else {
+        return false;
+    };
+    let mut digits = [0u8; 20];
+    let mut k = 0;
+    for &c in mantissa.iter().filter(|c| c.is_ascii_digit()) {
+        if k == digits.len() {
+            return false;
+        }
+        digits[k] = c;
+        k += 1;
+    }
+    let mut n = n;
+    if let Some(partner) = tie_partner(a, &digits[..k], n) {
+        let mut even = Digits {
+            buf: [0; 40],
+            len: 0,
+        };
+        // The partner's digits, trailing zeros dropped, and its exponent.
+        let (mut p, mut q) = (partner, n - k as i32);
+        while p % 10 == 0 {
+            p /= 10;
+            q += 1;
+        }
+        if write!(even, "{p}e{q}").is_ok() {
+            let text = std::str::from_utf8(&even.buf[..even.len]).unwrap_or("");
+            if text.parse::<f64>() == Ok(a) {
+                let len = text.find('e').unwrap_or(0);
+                if len <= digits.len() {
+                    digits[..len].copy_from_slice(&text.as_bytes()[..len]);
+                    k = len;
+                    n = q + len as i32;
+                }
+            }
+        }
+    }
+    layout(&digits[..k], n, out);
+    true
+}
+
+/// ECMAScript's layout (Number::toString steps 6–10) of the digits `d₁…d_k` with the value
+/// `0.d₁…d_k × 10^n`.
+fn layout(digits: &[u8], n: i32, out: &mut String) {
+    // The digits are ASCII.
+    let d = std::str::from_utf8(digits).unwrap_or("");
+    let k = d.len() as i32;
     if k <= n && n <= 21 {
-        out.push_str(&digits);
+        out.push_str(d);
         out.extend(std::iter::repeat_n('0', (n - k) as usize));
     } else if 0 < n && n <= 21 {
-        out.push_str(&digits[..n as usize]);
+        out.push_str(&d[..n as usize]);
         out.push('.');
-        out.push_str(&digits[n as usize..]);
+        out.push_str(&d[n as usize..]);
     } else if -6 < n && n <= 0 {
         out.push_str("0.");
         out.extend(std::iter::repeat_n('0', (-n) as usize));
-        out.push_str(&digits);
+        out.push_str(d);
     } else {
-        out.push_str(&digits[..1]);
+        out.push_str(&d[..1]);
         if k > 1 {
             out.push('.');
-            out.push_str(&digits[1..]);
+            out.push_str(&d[1..]);
         }
         let e = n - 1;
         let _ = write!(out, "e{}{}", if e < 0 { '-' } else { '+' }, e.abs());
     }
-    Some(out)
+}
+
+/// If the positive double `a` lies exactly halfway between the k-digit decimal `D × 10^q`
+/// given by `digits` (`q = n − k`) and a neighbour `(D ± 1) × 10^q`, with `D` odd, that
+/// neighbour `D ± 1` (even); `None` otherwise. A tie means `2a = (2D ± 1) × 10^q` exactly.
+///
+/// With `a = m × 2^e`, m odd, and `c = 2D ± 1` odd, the equation `m 2^(e+1) = c 2^q 5^q`
+/// holds only if the powers of two agree, `e + 1 = q`, and then the odd parts: `m = c 5^q`
+/// for `q ≥ 0`, `m 5^(−q) = c` for `q < 0`. All in `u128`, with overflow meaning "no".
+fn tie_partner(a: f64, digits: &[u8], n: i32) -> Option<u64> {
+    let bits = a.to_bits();
+    let exp_bits = ((bits >> 52) & 0x7ff) as i32;
+    let frac = bits & ((1u64 << 52) - 1);
+    let (mut m, mut e) = if exp_bits == 0 {
+        (frac, -1074)
+    } else {
+        (frac | (1u64 << 52), exp_bits - 1075)
+    };
+    if m == 0 {
+        return None;
+    }
+    let tz = m.trailing_zeros();
+    m >>= tz;
+    e += tz as i32;
+    let q = n - digits.len() as i32;
+    if e + 1 != q {
+        return None;
+    }
+    let mut d: u64 = 0;
+    for &c in digits {
+        d = d.checked_mul(10)?.checked_add(u64::from(c - b'0'))?;
+    }
+    if d % 2 == 0 {
+        return None;
+    }
+    let m = u128::from(m);
+    let d128 = u128::from(d);
+    let pow5 = 5u128.checked_pow(q.unsigned_abs());
+    for (c, partner) in [(2 * d128 + 1, d + 1), (2 * d128 - 1, d - 1)] {
+        let equal = if q >= 0 {
+            pow5.and_then(|p| c.checked_mul(p)) == Some(m)
+        } else {
+            pow5.and_then(|p| m.checked_mul(p)) == Some(c)
+        };
+        if equal && partner > 0 {
+            return Some(partner);
+        }
+    }
+    None
 }
 
 #[cfg(test)]
@@ -283,6 +534,125 @@ mod tests {
         assert_eq!(num(100.0), "100");
         assert_eq!(num(1.5e300), "1.5e+300");
         assert_eq!(num(123e-20), "1.23e-18");
+    }
+
+    /// Against Python's float repr (shortest round-trip digits, nearest, ties to even) laid
+    /// out as ECMAScript does: the fixture `tests/reference/canonical/numbers.txt` (written
+    /// by `make_numbers.py` beside it) holds every power of two and its neighbours, random
+    /// bit patterns, dyadic fractions with few bits (where exact ties live) and integers.
+    #[test]
+    fn numbers_match_the_python_repr_fixture() {
+        let path = concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/tests/reference/canonical/numbers.txt"
+        );
+        let text = std::fs::read_to_string(path).unwrap();
+        let mut n = 0;
+        for line in text.lines() {
+            let (bits, want) = line.split_once(' ').unwrap();
+            let x = f64::from_bits(u64::from_str_radix(bits, 16).unwrap());
+            assert_eq!(num(x), want, "bits {bits}");
+            n += 1;
+        }
+        assert_eq!(n, 13_294);
+    }
+
+    /// The previous writer: digit count from `{:e}`, digits from Rust's exact formatting at
+    /// that count (nearest, ties to even), for every number. It is right wherever the
+    /// rounding interval of x is symmetric, i.e. except at exact powers of two, where the
+    /// nearest k-digit decimal may lie outside the narrower lower half of the interval and
+    /// not round-trip (2^-1013: it gave 7.120236347223044e-307, which reads back as another
+    /// double; the fixture above and the fast writer give …045).
+    fn previous(x: f64) -> String {
+        if x == 0.0 {
+            return "0".into();
+        }
+        let mut out = String::new();
+        if x < 0.0 {
+            out.push('-');
+        }
+        let shortest = format!("{:e}", x.abs());
+        let k = shortest
+            .split_once('e')
+            .unwrap()
+            .0
+            .chars()
+            .filter(|c| *c != '.')
+            .count();
+        let sci = format!("{:.*e}", k - 1, x.abs());
+        let (mantissa, exp) = sci.split_once('e').unwrap();
+        let digits: String = mantissa.chars().filter(|c| *c != '.').collect();
+        layout(digits.as_bytes(), exp.parse::<i32>().unwrap() + 1, &mut out);
+        out
+    }
+
+    /// The fast writer gives the previous writer's bytes away from powers of two, over
+    /// 200 000 random bit patterns (every exponent), integers, dyadic fractions with few bits
+    /// and values at x.25 steps above 2^50; the exact ties with an odd shortest digit string
+    /// among them are counted, so the tie path is exercised.
+    #[test]
+    fn the_fast_number_writer_matches_the_previous_one_off_powers_of_two() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(8785);
+        let mut xs: Vec<f64> = (0..200_000)
+            .map(|_| f64::from_bits(rng.random::<u64>()))
+            .filter(|x| x.is_finite())
+            .collect();
+        for i in 0..20_000u64 {
+            xs.push(i as f64);
+            xs.push((rng.random::<u64>() >> rng.random_range(0..64)) as f64);
+            let m = rng.random_range(1u64..1 << 20) as f64;
+            xs.push(m * 2f64.powi(rng.random_range(-60..80)));
+            xs.push(1_424_953_923_781_206.0 + 0.25 * (i % 8) as f64);
+        }
+        let (mut ties, mut checked) = (0, 0);
+        for &x in &xs {
+            let a = x.abs();
+            if a.to_bits() & ((1 << 52) - 1) == 0 {
+                continue; // a power of two (or zero): see `previous`
+            }
+            let sh = format!("{a:e}");
+            let (m, e) = sh.split_once('e').unwrap();
+            let d: Vec<u8> = m.bytes().filter(u8::is_ascii_digit).collect();
+            ties += usize::from(tie_partner(a, &d, e.parse::<i32>().unwrap() + 1).is_some());
+            assert_eq!(num(x), previous(x), "bits {:016x}", x.to_bits());
+            checked += 1;
+        }
+        assert!(checked > 250_000, "{checked}");
+        assert!(ties >= 1000, "only {ties} exact ties exercised");
+    }
+
+    /// The streamed digest is the SHA-256 (FIPS 180-4) of the canonical bytes, also for a
+    /// body of several flushes; and the RFC 8785 §3.2.2 example hashes to the digest of its
+    /// canonical text as given in the RFC.
+    #[test]
+    fn the_streamed_digest_is_the_digest_of_the_canonical_bytes() {
+        use super::super::hash::sha256_hex;
+        let big = serde_json::json!({
+            "b": (0..40_000).map(|i| f64::from(i) * 0.37).collect::<Vec<_>>(),
+            "a": [{"z": "x\ny", "é": 1}, {"\u{e000}": 1, "\u{1f600}": 2}],
+        });
+        let bytes = to_canonical_bytes(&big).unwrap();
+        assert!(bytes.len() > 4 * FLUSH_BYTES);
+        assert_eq!(canonical_sha256_hex(&big).unwrap(), sha256_hex(&bytes));
+        let rfc = "{\"literals\":[null,true,false],\"numbers\":[333333333.3333333,1e+30,4.5,\
+                   0.002,1e-27],\"string\":\"\u{20ac}$\\u000f\\nA'B\\\"\\\\\\\\\\\"/\"}";
+        let v: Value = serde_json::from_str(rfc).unwrap();
+        assert_eq!(
+            canonical_sha256_hex(&v).unwrap(),
+            sha256_hex(rfc.as_bytes())
+        );
+    }
+
+    /// Names at or above U+E000 take the sorting path; the order is UTF-16's (the surrogate
+    /// pair of U+1F600 before U+E000), not the map's code-point order.
+    #[test]
+    fn names_above_u_e000_are_sorted_by_utf16_code_units() {
+        let v = serde_json::json!({"\u{e000}": 1, "\u{1f600}": 2, "a": 3});
+        assert_eq!(
+            to_canonical_json(&v).unwrap(),
+            "{\"a\":3,\"\u{1f600}\":2,\"\u{e000}\":1}"
+        );
     }
 
     #[test]

@@ -10,8 +10,7 @@ use std::path::Path;
 use serde_json::{json, Value};
 
 use super::body::{FORMAT, FORMAT_VERSION};
-use super::canonical::to_canonical_bytes;
-use super::hash::sha256_hex;
+use super::canonical::canonical_sha256_hex;
 use crate::error::{Error, InputKind, Problem, Result};
 
 /// A sealed certificate.
@@ -24,9 +23,24 @@ pub struct Certificate {
 }
 
 /// The digest of a body: SHA-256 of its RFC 8785 form; `None` if it has no canonical form.
+/// The form is hashed as it is written, never held whole.
 pub fn body_digest(body: &Value) -> Option<String> {
-    to_canonical_bytes(body).ok().map(|b| sha256_hex(&b))
+    canonical_sha256_hex(body).ok()
 }
+
+/// The file's top level, borrowing the body and envelope (serialised in the order of the
+/// names, as serde_json's sorted map writes them, so the text is the same as before).
+#[derive(serde::Serialize)]
+struct FileView<'a> {
+    body: &'a Value,
+    digest: &'a str,
+    digest_method: &'static str,
+    envelope: &'a Value,
+    format: &'static str,
+    format_version: u64,
+}
+
+const DIGEST_METHOD: &str = "SHA-256 of the RFC 8785 (JSON Canonicalization Scheme) form of body";
 
 impl Certificate {
     /// Seals `body` with its digest and the given envelope.
@@ -41,19 +55,44 @@ impl Certificate {
         })
     }
 
-    /// The file's text: pretty-printed JSON with a final newline.
+    /// The file's text: pretty-printed JSON with a final newline. The body is serialised in
+    /// place (not copied into a new tree first).
     pub fn to_file_text(&self) -> String {
-        let v = json!({
-            "format": FORMAT,
-            "format_version": FORMAT_VERSION,
-            "digest": self.digest,
-            "digest_method": "SHA-256 of the RFC 8785 (JSON Canonicalization Scheme) form of body",
-            "body": self.body,
-            "envelope": self.envelope,
-        });
-        let mut s = serde_json::to_string_pretty(&v).unwrap_or_default();
-        s.push('\n');
-        s
+        let mut bytes = Vec::new();
+        // Writing into a Vec cannot fail, and every number in a Value is finite.
+        let _ = self.write_file_text(&mut bytes);
+        String::from_utf8(bytes).unwrap_or_default()
+    }
+
+    /// Writes [`Certificate::to_file_text`] to `w` (e.g. a buffered file, so the text is
+    /// never held whole).
+    pub fn write_file_text(&self, w: &mut impl std::io::Write) -> std::io::Result<()> {
+        let view = FileView {
+            body: &self.body,
+            digest: &self.digest,
+            digest_method: DIGEST_METHOD,
+            envelope: &self.envelope,
+            format: FORMAT,
+            format_version: FORMAT_VERSION,
+        };
+        serde_json::to_writer_pretty(&mut *w, &view).map_err(std::io::Error::other)?;
+        w.write_all(b"\n")
+    }
+
+    /// Writes the file text to `path` atomically ([`crate::outputs::atomic::write_file`]),
+    /// streamed through a buffer: the text is never held whole in memory. Without `force`, an
+    /// existing `path` is an error and is left untouched.
+    pub fn write_to(&self, path: &Path, force: bool) -> Result<()> {
+        crate::outputs::atomic::write_file(path, force, |tmp| {
+            let fail = |e: std::io::Error| Error::Write {
+                path: path.to_path_buf(),
+                message: e.to_string(),
+            };
+            let file = std::fs::File::create(tmp).map_err(fail)?;
+            let mut w = std::io::BufWriter::with_capacity(1 << 16, file);
+            self.write_file_text(&mut w).map_err(fail)?;
+            std::io::Write::flush(&mut w).map_err(fail)
+        })
     }
 
     /// Reads a certificate file; problems of its outer structure are input errors.
@@ -182,6 +221,39 @@ mod tests {
             rfc3339_from_unix(1_796_083_200 + 3_723),
             "2026-12-01T01:02:03Z"
         );
+    }
+
+    /// The borrowed view writes the text of the whole document as a JSON value (sorted
+    /// names), byte for byte.
+    #[test]
+    fn the_file_text_is_the_pretty_form_of_the_whole_document() {
+        let c = Certificate::seal(
+            json!({"z": [1.5, -0.0, 1e-7], "a": {"k": "v\u{e9}"}}),
+            json!({"host": "h", "note": null}),
+        )
+        .unwrap();
+        let whole = json!({
+            "format": FORMAT,
+            "format_version": FORMAT_VERSION,
+            "digest": c.digest,
+            "digest_method": DIGEST_METHOD,
+            "body": c.body,
+            "envelope": c.envelope,
+        });
+        let mut want = serde_json::to_string_pretty(&whole).unwrap();
+        want.push('\n');
+        assert_eq!(c.to_file_text(), want);
+        let back: Value = serde_json::from_str(&c.to_file_text()).unwrap();
+        assert_eq!(back, whole);
+        // Written to a file: the same bytes, read back as the same certificate; not over an
+        // existing file without force.
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("c.json");
+        c.write_to(&path, false).unwrap();
+        assert_eq!(std::fs::read_to_string(&path).unwrap(), want);
+        assert_eq!(Certificate::read(&path).unwrap(), c);
+        assert!(c.write_to(&path, false).is_err());
+        c.write_to(&path, true).unwrap();
     }
 
     #[test]

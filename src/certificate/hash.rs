@@ -40,7 +40,8 @@ pub fn sha256_file(path: &Path) -> std::io::Result<(u64, String)> {
     Ok((size, hex(&hasher.finalize())))
 }
 
-fn hex(bytes: &[u8]) -> String {
+/// Lowercase hexadecimal of `bytes` (a digest).
+pub fn hex(bytes: &[u8]) -> String {
     let mut s = String::with_capacity(2 * bytes.len());
     for b in bytes {
         s.push(char::from(b"0123456789abcdef"[usize::from(b >> 4)]));

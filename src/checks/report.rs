@@ -25,16 +25,12 @@
 use serde_json::{json, Value};
 
 use super::chi_square::{chi2_isf, chi2_sf};
+use super::columns::{ColumnStats, ShotSum};
 use super::holm::holm_adjust;
+use super::ideal::HalfWidth;
 use super::maurer_pontil;
-use super::variance::{
-    bhatia_davis_max, hoeffding_mean_radius, mean_and_variance, noise_variance,
-    shot_variance_counts, shot_variance_stderr,
-};
-use crate::bounds::global::PointBounds;
-use crate::bounds::global::{
-    evaluate_point, global_sensitivities, PointInputs, ShotData, SourceData,
-};
+use super::variance::{bhatia_davis_max, hoeffding_mean_radius, noise_variance};
+use crate::bounds::global::{bias_ln_sum, PointBounds, SourceData};
 use crate::bounds::run_bounds::RunBounds;
 use crate::certificate::body::num;
 use crate::model::noise::Redrawn;
@@ -42,10 +38,6 @@ use crate::model::{NoiseModel, Observable, Run};
 
 /// Share of the smallest Holm threshold `level/m` given to the interval for the mean.
 const MEAN_INTERVAL_SHARE: f64 = 0.1;
-/// The smallest p-value the ideal-reference bisection resolves (reported as this bound).
-const SMALLEST_P: f64 = 1e-300;
-/// Bisection steps on ln ε for the ideal-reference p-value: 690/2⁴⁰ ≈ 6e-10 relative.
-const BISECTION_STEPS: usize = 40;
 
 /// Which test failed.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -274,6 +266,9 @@ pub struct CheckPlan<'a> {
     n_tests: usize,
     not_performed: Option<String>,
     variance_not_possible: Option<String>,
+    /// `Σ_i ln φ(2tδ_i)` per time, the observable-independent part of `E_bias` (empty when no
+    /// observable gives an ideal reference).
+    bias_ln_sums: Vec<f64>,
 }
 
 impl<'a> CheckPlan<'a> {
@@ -318,6 +313,11 @@ impl<'a> CheckPlan<'a> {
         } else {
             0.0
         };
+        let bias_ln_sums = if m_ideal > 0 && not_performed.is_none() {
+            times.iter().map(|&t| bias_ln_sum(sources, t)).collect()
+        } else {
+            Vec::new()
+        };
         CheckPlan {
             times,
             sources,
@@ -328,6 +328,7 @@ impl<'a> CheckPlan<'a> {
             n_tests,
             not_performed,
             variance_not_possible,
+            bias_ln_sums,
         }
     }
 
@@ -357,46 +358,60 @@ impl<'a> CheckPlan<'a> {
         other_v_noise: Option<&[f64]>,
     ) -> ObservableChecks {
         let r = self.realizations;
+        let s_o = o.spread();
         let mut points = Vec::with_capacity(self.times.len());
         if self.not_performed.is_none() {
+            let stats = ColumnStats::of(o);
+            // The global sensitivities s_O·t, refilled per time (no allocation per point).
+            let mut global = Vec::with_capacity(self.sources.len());
             for (k, &t) in self.times.iter().enumerate() {
-                let sens = match sensitivities.and_then(|v| v.get(k)) {
-                    Some(e) => e.clone(),
-                    None => global_sensitivities(self.sources.len(), o.spread(), t),
+                global.clear();
+                global.resize(self.sources.len(), s_o * t);
+                let sens: &[f64] = match sensitivities.and_then(|v| v.get(k)) {
+                    Some(e) => e,
+                    None => &global,
                 };
-                let column: Vec<f64> = o.values.column(k).iter().copied().collect();
-                // The smaller of two upper bounds on the same variance (see above);
-                // `noise_variance` is 0 unless the noise is redrawn every realization.
-                let v_noise = noise_variance(self.redrawn, self.sources, &sens);
-                let other = other_v_noise.and_then(|v| v.get(k)).copied();
-                let v_noise = other.map_or(v_noise, |x| v_noise.min(x));
-                let variance = (r >= 2).then(|| {
-                    let mut v = variance_test(o, k, &column, v_noise, self.gamma);
-                    v.std_lower_distribution_free = maurer_pontil::std_lower_bound(
-                        v.sample_variance.sqrt(),
-                        r,
-                        o.spread(),
-                        self.level,
-                    );
-                    v
-                });
-                let ideal = match (&o.ideal, points_bounds.get(k), mean.get(k)) {
-                    (Some(ideal), Some(pb), Some(&m)) if r >= 1 => {
-                        let deviation = m - ideal[k];
-                        let inputs = IdealInputs {
-                            realizations: r,
-                            observable: o,
-                            k,
-                            t,
-                            sources: self.sources,
-                            redrawn: self.redrawn,
+                let shots = stats.shots.get(k).copied();
+                let variance = match shots {
+                    Some(shots) if r >= 2 => {
+                        let column = Column {
+                            mean: stats.mean.get(k).copied().unwrap_or(f64::NAN),
+                            variance: stats.variance.get(k).copied().unwrap_or(f64::NAN),
+                            rows: stats.rows,
+                            shots,
                         };
+                        let other = other_v_noise.and_then(|v| v.get(k)).copied();
+                        let (redrawn, sources) = (self.redrawn, self.sources);
+                        let mut v =
+                            variance_test(o, &column, redrawn, sources, sens, other, self.gamma);
+                        v.std_lower_distribution_free = maurer_pontil::std_lower_bound(
+                            v.sample_variance.sqrt(),
+                            r,
+                            s_o,
+                            self.level,
+                        );
+                        Some(v)
+                    }
+                    _ => None,
+                };
+                let ideal = match (&o.ideal, points_bounds.get(k), mean.get(k), shots) {
+                    (Some(ideal), Some(pb), Some(&m), Some(shots)) if r >= 1 => {
+                        let deviation = m - ideal[k];
+                        let half_width = HalfWidth::new(
+                            s_o,
+                            self.sources,
+                            &global,
+                            self.bias_ln_sums.get(k).copied().unwrap_or(f64::NAN),
+                            self.redrawn,
+                            r,
+                            shots,
+                        );
                         Some(IdealTest {
                             ideal: ideal[k],
                             deviation,
                             half_width: pb.half_width,
                             inside: deviation.abs() <= pb.half_width,
-                            p_value: ideal_p_value(&inputs, deviation.abs()),
+                            p_value: half_width.p_value(deviation.abs()),
                             adjusted_p_value: 1.0,
                             rejected: false,
                         })
@@ -450,28 +465,37 @@ impl<'a> CheckPlan<'a> {
     }
 }
 
-/// The variance test at time index `k` (without the Holm fields and the lower bound).
+/// One time's column of an observable, summed ([`ColumnStats`]).
+struct Column {
+    mean: f64,
+    variance: f64,
+    rows: usize,
+    shots: ShotSum,
+}
+
+/// The variance test at one time (without the Holm fields and the lower bound).
 fn variance_test(
     o: &Observable,
-    k: usize,
-    column: &[f64],
-    v_noise: f64,
+    c: &Column,
+    redrawn: Redrawn,
+    sources: &[SourceData],
+    sens: &[f64],
+    other_v_noise: Option<f64>,
     gamma: f64,
 ) -> VarianceTest {
-    let r = column.len();
-    let (mean, var) = mean_and_variance(column).unwrap_or((f64::NAN, f64::NAN));
-    let (v_shot, interval, approximate, gamma_used) = match &o.stderr {
-        Some(se) => {
-            let col: Vec<f64> = se.column(k).iter().copied().collect();
-            (shot_variance_stderr(&col), [mean, mean], true, 0.0)
-        }
-        None => {
-            let radius = hoeffding_mean_radius(o.spread(), r, gamma);
-            let interval = [mean - radius, mean + radius];
-            let h = bhatia_davis_max(o.spectrum_min, o.spectrum_max, interval[0], interval[1]);
-            let shots: Vec<u64> = (0..r).map(|i| o.shots.at(i, k)).collect();
-            (shot_variance_counts(h, &shots), interval, false, gamma)
-        }
+    let r = c.rows;
+    let (mean, var) = (c.mean, c.variance);
+    // The smaller of two upper bounds on the same variance (see `observable_with_variance`);
+    // `noise_variance` is 0 unless the noise is redrawn every realization, and stays 0.
+    let v_noise = noise_variance(redrawn, sources, sens);
+    let v_noise = other_v_noise.map_or(v_noise, |x| v_noise.min(x));
+    let (v_shot, interval, approximate, gamma_used) = if c.shots.approximate() {
+        (c.shots.variance(0.0, r), [mean, mean], true, 0.0)
+    } else {
+        let radius = hoeffding_mean_radius(o.spread(), r, gamma);
+        let interval = [mean - radius, mean + radius];
+        let h = bhatia_davis_max(o.spectrum_min, o.spectrum_max, interval[0], interval[1]);
+        (c.shots.variance(h, r), interval, false, gamma)
     };
     let allowed = v_noise + v_shot;
     let dof = (r - 1) as f64;
@@ -506,74 +530,6 @@ fn variance_test(
         adjusted_p_value_distribution_free: 1.0,
         rejected_distribution_free: false,
     }
-}
-
-/// What the ideal-reference p-value needs to re-evaluate the bounds at other levels.
-struct IdealInputs<'a> {
-    realizations: usize,
-    observable: &'a Observable,
-    k: usize,
-    t: f64,
-    sources: &'a [SourceData],
-    redrawn: Redrawn,
-}
-
-/// `E_avg(ε) + E_shot(ε)` at one point, pointwise, with the default split of ε (equal halves,
-/// or all to the shot term when the noise is redrawn every shot).
-fn half_width_at(inp: &IdealInputs, eps: f64) -> f64 {
-    let r = inp.realizations;
-    let (p, alpha) = match inp.redrawn {
-        Redrawn::EveryShot => (0.0, eps),
-        _ => (0.5 * eps, 0.5 * eps),
-    };
-    let o = inp.observable;
-    let shots: Vec<u64>;
-    let se: Vec<f64>;
-    let shot_data = match &o.stderr {
-        Some(e) => {
-            se = e.column(inp.k).iter().copied().collect();
-            ShotData::StdErr(&se)
-        }
-        None => {
-            shots = (0..r).map(|i| o.shots.at(i, inp.k)).collect();
-            ShotData::Counts(&shots)
-        }
-    };
-    evaluate_point(&PointInputs {
-        s_o: o.spread(),
-        t: inp.t,
-        sources: inp.sources,
-        sensitivities: None,
-        redrawn: inp.redrawn,
-        realizations: r,
-        shots: shot_data,
-        p,
-        alpha,
-        p_single: eps,
-    })
-    .half_width
-}
-
-/// The smallest ε in `[SMALLEST_P, 1]` whose interval excludes a deviation `dev` (the
-/// half-width decreases with ε); 1 when even ε = 1 does not. Returned from the rejecting side
-/// of the bracket, so it never understates the p-value by more than the bracket.
-fn ideal_p_value(inp: &IdealInputs, dev: f64) -> f64 {
-    if dev.is_nan() || dev <= half_width_at(inp, 1.0) {
-        return 1.0;
-    }
-    if dev > half_width_at(inp, SMALLEST_P) {
-        return SMALLEST_P;
-    }
-    let (mut lo, mut hi) = (SMALLEST_P.ln(), 0.0f64);
-    for _ in 0..BISECTION_STEPS {
-        let mid = 0.5 * (lo + hi);
-        if dev > half_width_at(inp, mid.exp()) {
-            hi = mid;
-        } else {
-            lo = mid;
-        }
-    }
-    hi.exp().min(1.0)
 }
 
 /// Holm over the decision family (variance χ² and ideal tests, in observable, time, kind
@@ -1200,24 +1156,52 @@ mod tests {
     }
 
     /// The ideal-reference p-value is the ε at which the interval just excludes the ideal:
-    /// the half-width there equals the deviation.
+    /// the half-width there, from a full `evaluate_point` (pointwise, ε split in halves),
+    /// equals the deviation. The mean is placed at half the ε = 1e-6 half-width from the
+    /// ideal at every time, t = 0 included.
     #[test]
     fn the_ideal_p_value_is_where_the_interval_reaches_the_deviation() {
+        use crate::bounds::global::{evaluate_point, PointInputs, ShotData};
         let noise = record(0.05, Redrawn::EveryRealization);
         let run = simulate(0.05, 20, 100, 9);
-        let inp = IdealInputs {
-            realizations: run.n_realizations(),
-            observable: &run.observables[0],
-            k: 2,
-            t: TIMES[2],
-            sources: &[SourceData::from_instance(&noise.instances[0])],
-            redrawn: noise.redrawn,
+        let bounds = evaluate_run(&run, &noise, 0.95, Simultaneity::Simultaneous).unwrap();
+        let o = &run.observables[0];
+        let shots = vec![100u64; 20];
+        let full = |t: f64, eps: f64| {
+            evaluate_point(&PointInputs {
+                s_o: 2.0,
+                t,
+                sources: &bounds.sources,
+                sensitivities: None,
+                redrawn: Redrawn::EveryRealization,
+                realizations: 20,
+                shots: ShotData::Counts(&shots),
+                p: 0.5 * eps,
+                alpha: 0.5 * eps,
+                p_single: eps,
+            })
+            .half_width
         };
-        let dev = 0.5 * half_width_at(&inp, 1e-6);
-        let p = ideal_p_value(&inp, dev);
-        assert!(p > 1e-6 && p < 1.0);
-        assert!((half_width_at(&inp, p) / dev - 1.0).abs() < 1e-6);
-        assert_eq!(ideal_p_value(&inp, 0.0), 1.0);
+        let ideal = o.ideal.as_ref().unwrap();
+        let mean: Vec<f64> = TIMES
+            .iter()
+            .zip(ideal)
+            .map(|(&t, &i)| i - 0.5 * full(t, 1e-6))
+            .collect();
+        let plan = CheckPlan::new(&run.times, &bounds.sources, noise.redrawn, 20, 1, 1, 0.01);
+        let oc = plan.observable(o, &mean, &bounds.observables[0].points, None);
+        for (pc, &t) in oc.points.iter().zip(&TIMES) {
+            let test = pc.ideal.as_ref().unwrap();
+            let (p, dev) = (test.p_value, test.deviation.abs());
+            assert!(p > 1e-6 && p < 1.0, "t={t}: {p}");
+            assert!((full(t, p) / dev - 1.0).abs() < 1e-6, "t={t}");
+            assert!(dev > full(t, p), "t={t}: p must be on the rejecting side");
+        }
+        let inside = plan.observable(o, ideal, &bounds.observables[0].points, None);
+        assert!(inside
+            .points
+            .iter()
+            .all(|pc| pc.ideal.as_ref().unwrap().p_value == 1.0));
     }
 
     #[test]
