@@ -59,6 +59,11 @@ pub enum Unavailable {
          couplings (interaction_range = 1)"
     )]
     InteractionRange(u32),
+    #[error(
+        "the term-by-term sensitivities need {values} values (sources × times), more than the \
+         limit of {limit}"
+    )]
+    TermsTooLarge { values: usize, limit: usize },
     #[error("the observable has no support (it acts on the whole system)")]
     GlobalObservable,
     #[error("the observable's support names site {site}, but the lattice has {n_sites} sites")]

@@ -5,8 +5,9 @@
 //! light-cone one (§5) when it is smaller ([`super::local::combine`]). The walk graph is built
 //! once per run; the exposure times of a support are computed once and reused by every
 //! observable with the same support (within a memory budget, see [`EXPOSURE_BUDGET`]).
-//! Observables that are sums of local terms use the support of the whole observable (the union
-//! of the terms' supports); per-term sensitivities are not used yet.
+//! Observables that are sums of local terms get a third candidate, the term-by-term statement
+//! ([`super::local::term_bounds`]): per source the smallest of the global, whole-support and
+//! term-by-term sensitivities; the point reports the smallest of the three statements.
 //!
 //! The order of operations is fixed (observables in name order, times in order, realizations
 //! in order), so the numbers, and hence the certificate, reproduce to the bit.
@@ -18,8 +19,10 @@ use super::global::{
     PointInputs, ShotData, SourceData,
 };
 use super::light_cone::{Exposure, Unavailable, WalkGraph};
-use super::local::{combine, local_bounds_with, LocalInputs, LocalTerms, Statement};
-use crate::model::{Hamiltonian, Lattice, NoiseModel, Observable, Run, Shots, TimeUnit};
+use super::local::{
+    combine_all, local_bounds_with, term_bounds, LocalInputs, LocalTerms, Statement, TermByTerm,
+};
+use crate::model::{Hamiltonian, Lattice, NoiseModel, Observable, Run, Shots, Terms, TimeUnit};
 
 /// Largest number of exposure values (region sources × times, summed over the supports kept)
 /// held for reuse: 2^24 values, 128 MiB. Past it the kept exposures are dropped before a new
@@ -42,8 +45,9 @@ pub enum LightCone {
     Computed {
         order: usize,
         region_sources: usize,
-        /// The observable is a sum of local terms; the support of the whole was used.
-        whole_support_of_terms: bool,
+        /// The observable is a sum of local terms: `Ok(A)` when the term-by-term statement
+        /// was computed for its `A` terms, else why not.
+        terms: Option<Result<usize, String>>,
     },
     /// Not available: the reason (a [`Unavailable`] text).
     Unavailable(String),
@@ -56,19 +60,25 @@ impl LightCone {
             LightCone::Computed {
                 order,
                 region_sources,
-                whole_support_of_terms,
+                terms,
             } => {
                 let mut s = format!(
                     "computed (Lieb-Robinson walk sums to order {order}, {region_sources} noise \
                      instances in the computed region, the others bounded by the tail); at each \
                      time the smaller statement is used"
                 );
-                if *whole_support_of_terms {
-                    s.push_str(
-                        "; the observable is a sum of local terms: the light cone of its whole \
-                         support (the union of the terms' supports) is used, not term by term, \
-                         so an observable spread over the whole system gains little",
-                    );
+                match terms {
+                    Some(Ok(a)) => s.push_str(&format!(
+                        "; the observable is a sum of {a} local terms: each noise instance's \
+                         sensitivity is the smallest of the global, whole-support and \
+                         term-by-term forms (see term_by_term)"
+                    )),
+                    Some(Err(why)) => s.push_str(&format!(
+                        "; the observable is a sum of local terms, but the term-by-term \
+                         statement is not available ({why}): the light cone of its whole \
+                         support (the union of the terms' supports) is used"
+                    )),
+                    None => {}
                 }
                 s
             }
@@ -100,6 +110,9 @@ pub struct ObservableBounds {
     pub e_avg_global: Vec<f64>,
     /// Per time, the light-cone terms, when computed.
     pub local: Option<Vec<LocalTerms>>,
+    /// The term-by-term statement, when the observable is a sum of local terms and it was
+    /// computed.
+    pub term_by_term: Option<TermByTerm>,
 }
 
 impl ObservableBounds {
@@ -111,10 +124,22 @@ impl ObservableBounds {
 
     /// Per time, the light-cone Efron–Stein variance `Σ δ_i² σ_i² e_i²` of one draw (before the
     /// realization rule), when computed; see [`LocalTerms::v_noise`].
+    ///
+    /// With a term-by-term statement, the smaller of the two per time (both are upper bounds
+    /// on the same variance, fixed before the data are seen).
     pub fn local_v_noise(&self) -> Option<Vec<f64>> {
-        self.local
+        let local = self
+            .local
             .as_ref()
-            .map(|l| l.iter().map(|x| x.v_noise).collect())
+            .map(|l| l.iter().map(|x| x.v_noise).collect::<Vec<f64>>())?;
+        Some(match &self.term_by_term {
+            Some(t) => local
+                .iter()
+                .zip(&t.points)
+                .map(|(&a, b)| a.min(b.v_noise))
+                .collect(),
+            None => local,
+        })
     }
 }
 
@@ -143,7 +168,7 @@ impl RunBounds {
             local += o
                 .statements
                 .iter()
-                .filter(|s| **s == Statement::LightCone)
+                .filter(|s| **s != Statement::Global)
                 .count();
         }
         (local, all)
@@ -308,14 +333,15 @@ impl<'a> RunEvaluator<'a> {
 
     /// The light-cone terms of an observable at every time (`None` when unavailable) and the
     /// status to record.
+    #[allow(clippy::type_complexity)]
     fn local_terms(
         &mut self,
         support: &[usize],
         spread: f64,
-        has_terms: bool,
+        terms: Option<&Terms>,
         realizations: usize,
-    ) -> (Option<Vec<LocalTerms>>, LightCone) {
-        let unavailable = |why: &Unavailable| (None, LightCone::Unavailable(why.to_string()));
+    ) -> (Option<Vec<LocalTerms>>, Option<TermByTerm>, LightCone) {
+        let unavailable = |why: &Unavailable| (None, None, LightCone::Unavailable(why.to_string()));
         if support.is_empty() {
             return unavailable(&Unavailable::GlobalObservable);
         }
@@ -339,13 +365,17 @@ impl<'a> RunEvaluator<'a> {
             p: self.split.p_point,
             p_single: self.split.p_single_point,
         };
-        let terms = local_bounds_with(&inputs, exposure);
+        let local = local_bounds_with(&inputs, exposure);
+        let by_term = terms.map(|t| term_bounds(&inputs, t, exposure));
         let status = LightCone::Computed {
             order: exposure.order(),
             region_sources: exposure.region().len(),
-            whole_support_of_terms: has_terms,
+            terms: by_term.as_ref().map(|r| match r {
+                Ok(b) => Ok(b.n_terms),
+                Err(why) => Err(why.to_string()),
+            }),
         };
-        (Some(terms), status)
+        (Some(local), by_term.and_then(Result::ok), status)
     }
 
     /// The noise terms at every time for spread `s_o` and `r` realizations.
@@ -381,14 +411,14 @@ impl<'a> RunEvaluator<'a> {
     }
 
     /// The bounds of one observable of spread `spread` on `support` (sorted; empty: global)
-    /// from its sums; `has_terms` says whether it is a sum of local terms (only the recorded
-    /// reason depends on it).
+    /// from its sums; `terms` is its term structure, if it is a sum of local terms (then the
+    /// term-by-term statement is a third candidate).
     pub fn observable(
         &mut self,
         name: &str,
         spread: f64,
         support: &[usize],
-        has_terms: bool,
+        terms: Option<&Terms>,
         sums: &ObservableSums,
     ) -> ObservableBounds {
         let r = sums.realizations;
@@ -405,7 +435,7 @@ impl<'a> RunEvaluator<'a> {
             ShotSums::Uniform(s) => shot_hoeffding(spread, &vec![s; r], alpha),
             _ => f64::NAN,
         };
-        let (local, light_cone) = self.local_terms(support, spread, has_terms, r);
+        let (local, term_by_term, light_cone) = self.local_terms(support, spread, terms, r);
         let noise = self.noise_terms(spread, r);
         let e_avg_global = noise.iter().map(|p| p.e_avg).collect();
         let mut statements = Vec::with_capacity(noise.len());
@@ -426,7 +456,11 @@ impl<'a> RunEvaluator<'a> {
                     half_width: p.e_avg + e_shot,
                     ..*p
                 };
-                let (point, statement) = combine(&global, local.as_ref().and_then(|l| l.get(k)));
+                let (point, statement) = combine_all(
+                    &global,
+                    local.as_ref().and_then(|l| l.get(k)),
+                    term_by_term.as_ref().and_then(|t| t.points.get(k)),
+                );
                 statements.push(statement);
                 point
             })
@@ -441,6 +475,7 @@ impl<'a> RunEvaluator<'a> {
             light_cone,
             e_avg_global,
             local,
+            term_by_term,
         }
     }
 
@@ -491,7 +526,7 @@ pub fn evaluate_run(
         .iter()
         .map(|o| {
             let sums = ObservableSums::of(o);
-            ev.observable(&o.name, o.spread(), &o.support, o.terms.is_some(), &sums)
+            ev.observable(&o.name, o.spread(), &o.support, o.terms.as_ref(), &sums)
         })
         .collect();
     Ok(ev.finish(observables))

@@ -304,6 +304,19 @@ fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
             if let Some(l) = &b.local {
                 v["e_avg_light_cone"] = column(l.iter().map(|x| x.e_avg));
             }
+            if let Some(t) = &b.term_by_term {
+                let forms = |i: usize| column(t.forms.iter().map(move |f| f[i] as f64));
+                v["term_by_term"] = json!({
+                    "terms": t.n_terms,
+                    "e_avg": column(t.points.iter().map(|x| x.e_avg)),
+                    "form_used": b.statements.iter().map(|s| s.form()).collect::<Vec<_>>(),
+                    "sources_by_form": {
+                        "global": forms(0),
+                        "whole_support": forms(1),
+                        "term_by_term": forms(2),
+                    },
+                });
+            }
             if let Some(d) = &o.description {
                 v["description"] = json!(d);
             }

@@ -201,7 +201,7 @@ fn stream_run(
                 &outline.name,
                 outline.spread(),
                 &outline.support,
-                outline.terms.is_some(),
+                outline.terms.as_ref(),
                 &o.sums,
             );
             let plan = plan.get_or_insert_with(|| {
