@@ -301,6 +301,13 @@ fn write_number(x: f64, out: &mut String) -> bool {
         out.push('-');
     }
     let a = x.abs();
+    if a < 9_007_199_254_740_992.0 && a.fract() == 0.0 {
+        // An integer below 2^53: every neighbouring integer is a double, so the shortest
+        // digits are the integer's own (trailing zeros aside) and, with n ≤ 16 ≤ 21,
+        // ECMAScript writes the integer in full.
+        let _ = write!(out, "{}", a as u64);
+        return true;
+    }
     let mut shortest = Digits {
         buf: [0; 40],
         len: 0,

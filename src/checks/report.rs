@@ -736,13 +736,13 @@ impl ChecksReport {
             }
             ("inconsistent", text)
         };
-        json!({
-            "status": status,
-            "check_level": num(level),
-            "tests": self.n_tests,
-            "failures": failures,
-            "text": text,
-        })
+        object([
+            ("status", json!(status)),
+            ("check_level", num(level)),
+            ("tests", json!(self.n_tests)),
+            ("failures", Value::Array(failures)),
+            ("text", Value::String(text)),
+        ])
     }
 
     /// Every statistic of the checks, for the certificate body.
@@ -768,19 +768,42 @@ impl ChecksReport {
                                       Holm-corrected as a family of its own, not deciding",
             }),
         };
-        json!({
-            "status": "performed",
-            "check_level": num(self.check_level),
-            "realizations": self.realizations,
-            "redrawn": self.redrawn.as_str(),
-            "tests": self.n_tests,
-            "correction": "holm step-down over all variance and ideal-reference tests",
-            "decides_verdict": "the chi-square variance tests and the ideal-reference tests",
-            "variance": variance,
-            "observables": self.observables.iter().map(observable_json).collect::<Vec<_>>(),
-            "failures": self.failures.iter().map(failure_json).collect::<Vec<_>>(),
-        })
+        object([
+            ("status", json!("performed")),
+            ("check_level", num(self.check_level)),
+            ("realizations", json!(self.realizations)),
+            ("redrawn", json!(self.redrawn.as_str())),
+            ("tests", json!(self.n_tests)),
+            (
+                "correction",
+                json!("holm step-down over all variance and ideal-reference tests"),
+            ),
+            (
+                "decides_verdict",
+                json!("the chi-square variance tests and the ideal-reference tests"),
+            ),
+            ("variance", variance),
+            (
+                "observables",
+                Value::Array(self.observables.iter().map(observable_json).collect()),
+            ),
+            (
+                "failures",
+                Value::Array(self.failures.iter().map(failure_json).collect()),
+            ),
+        ])
     }
+}
+
+/// A JSON object from its members, moved in. (`json!` would copy every `Value` placed in it,
+/// which for the per-point arrays of a large run doubled the peak memory of the body.)
+fn object<const N: usize>(members: [(&str, Value); N]) -> Value {
+    Value::Object(
+        members
+            .into_iter()
+            .map(|(k, v)| (k.to_string(), v))
+            .collect(),
+    )
 }
 
 fn column<T>(points: &[PointCheck], f: impl Fn(&PointCheck) -> Option<T>) -> Vec<T> {
@@ -796,38 +819,53 @@ fn observable_json(oc: &ObservableChecks) -> Value {
     let variance = if pts.iter().all(|p| p.variance.is_some()) && !pts.is_empty() {
         let v = |f: fn(&VarianceTest) -> f64| nums(column(pts, |p| p.variance.as_ref().map(f)));
         let b = |f: fn(&VarianceTest) -> bool| json!(column(pts, |p| p.variance.as_ref().map(f)));
-        json!({
-            "sample_mean": v(|x| x.mean),
-            "sample_variance": v(|x| x.sample_variance),
-            "v_noise": v(|x| x.v_noise),
-            "v_shot": v(|x| x.v_shot),
-            "v_shot_approximate": pts.iter().any(|p| p.variance.as_ref().is_some_and(|x| x.shot_approximate)),
-            "mean_interval_low": v(|x| x.mean_interval[0]),
-            "mean_interval_high": v(|x| x.mean_interval[1]),
-            "chi_square_statistic": v(|x| x.statistic),
-            "p_value": v(|x| x.p_value),
-            "adjusted_p_value": v(|x| x.adjusted_p_value),
-            "rejected": b(|x| x.rejected),
-            "std_lower_distribution_free": v(|x| x.std_lower_distribution_free),
-            "p_value_distribution_free": v(|x| x.p_value_distribution_free),
-            "adjusted_p_value_distribution_free": v(|x| x.adjusted_p_value_distribution_free),
-            "rejected_distribution_free": b(|x| x.rejected_distribution_free),
-        })
+        let approximate = pts
+            .iter()
+            .any(|p| p.variance.as_ref().is_some_and(|x| x.shot_approximate));
+        object([
+            ("sample_mean", v(|x| x.mean)),
+            ("sample_variance", v(|x| x.sample_variance)),
+            ("v_noise", v(|x| x.v_noise)),
+            ("v_shot", v(|x| x.v_shot)),
+            ("v_shot_approximate", Value::Bool(approximate)),
+            ("mean_interval_low", v(|x| x.mean_interval[0])),
+            ("mean_interval_high", v(|x| x.mean_interval[1])),
+            ("chi_square_statistic", v(|x| x.statistic)),
+            ("p_value", v(|x| x.p_value)),
+            ("adjusted_p_value", v(|x| x.adjusted_p_value)),
+            ("rejected", b(|x| x.rejected)),
+            (
+                "std_lower_distribution_free",
+                v(|x| x.std_lower_distribution_free),
+            ),
+            (
+                "p_value_distribution_free",
+                v(|x| x.p_value_distribution_free),
+            ),
+            (
+                "adjusted_p_value_distribution_free",
+                v(|x| x.adjusted_p_value_distribution_free),
+            ),
+            (
+                "rejected_distribution_free",
+                b(|x| x.rejected_distribution_free),
+            ),
+        ])
     } else {
         json!({ "status": "not_possible" })
     };
     let ideal = if pts.iter().all(|p| p.ideal.is_some()) && !pts.is_empty() {
         let v = |f: fn(&IdealTest) -> f64| nums(column(pts, |p| p.ideal.as_ref().map(f)));
         let b = |f: fn(&IdealTest) -> bool| json!(column(pts, |p| p.ideal.as_ref().map(f)));
-        json!({
-            "ideal": v(|x| x.ideal),
-            "deviation": v(|x| x.deviation),
-            "half_width": v(|x| x.half_width),
-            "inside_interval": b(|x| x.inside),
-            "p_value": v(|x| x.p_value),
-            "adjusted_p_value": v(|x| x.adjusted_p_value),
-            "rejected": b(|x| x.rejected),
-        })
+        object([
+            ("ideal", v(|x| x.ideal)),
+            ("deviation", v(|x| x.deviation)),
+            ("half_width", v(|x| x.half_width)),
+            ("inside_interval", b(|x| x.inside)),
+            ("p_value", v(|x| x.p_value)),
+            ("adjusted_p_value", v(|x| x.adjusted_p_value)),
+            ("rejected", b(|x| x.rejected)),
+        ])
     } else {
         Value::Null
     };
@@ -864,14 +902,14 @@ fn observable_json(oc: &ObservableChecks) -> Value {
         .earliest_failure
         .and_then(|k| pts.get(k))
         .map(|p| json!({ "time_index": p.time_index, "time": num(p.time) }));
-    json!({
-        "name": oc.name,
-        "variance": variance,
-        "ideal_reference": ideal,
-        "t0": t0,
-        "implied_noise_scale": implied,
-        "earliest_failure": earliest,
-    })
+    object([
+        ("name", json!(oc.name)),
+        ("variance", variance),
+        ("ideal_reference", ideal),
+        ("t0", t0),
+        ("implied_noise_scale", implied),
+        ("earliest_failure", earliest.unwrap_or(Value::Null)),
+    ])
 }
 
 fn failure_json(f: &Failure) -> Value {
