@@ -12,3 +12,4 @@ mod report;
 mod review;
 mod run_file;
 mod simulate;
+mod sums;

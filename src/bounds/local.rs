@@ -300,6 +300,26 @@ pub fn term_bounds(
     terms: &Terms,
     whole: &Exposure,
 ) -> Result<TermByTerm, Unavailable> {
+    // One term on the whole support with |w| s_a ≥ s_O: the third form is `|w| s_a T_i ≥ s_O
+    // T_i` for every source, so the statement is exactly the whole-support one.
+    if let ([support], [w], [[lo, hi]]) = (
+        terms.supports.as_slice(),
+        terms.weights.as_slice(),
+        terms.spectra.as_slice(),
+    ) {
+        let mut sorted = support.clone();
+        sorted.sort_unstable();
+        sorted.dedup();
+        if sorted == inp.support && w.abs() * (hi - lo) >= inp.s_o {
+            let points = local_bounds_with(inp, whole);
+            let active = inp.sources.iter().filter(|s| s.delta > 0.0).count();
+            return Ok(TermByTerm {
+                n_terms: 1,
+                forms: vec![[0, active, 0]; points.len()],
+                points,
+            });
+        }
+    }
     let n = inp.instances.len();
     let n_t = inp.times.len();
     let values = n.saturating_mul(n_t);
@@ -688,6 +708,115 @@ mod tests {
                 (sw - (d + 1.0)).abs() < 0.15,
                 "{g:?}: worst-case slope {sw}"
             );
+        }
+    }
+
+    /// `(1/n) Σ_i Y_i` on `n` uncoupled sites (bond norms 0), one uniform Z source per site:
+    /// term by term `E_i = (2/n)·t`, so the fluctuation `∝ √(Σ E_i²)` falls like `n^{-1/2}`;
+    /// the whole operator has `E_i = 2t` and grows like `n^{1/2}` (bounds.md §5). Fitted over
+    /// n = 10 … 10^4.
+    fn averaged(n: usize, times: &[f64]) -> (Vec<LocalTerms>, TermByTerm) {
+        let l = Lattice::regular(Geometry::Chain, &[n], Boundary::Open).unwrap();
+        let inst: Vec<Instance> = instances(&l, 0.01, 0.0)
+            .into_iter()
+            .filter(|i| i.bond.is_none())
+            .collect();
+        let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
+        let graph = WalkGraph::new(&l, &vec![0.0; l.n_bonds()], 1, &inst).unwrap();
+        let support: Vec<usize> = (0..n).collect();
+        let inp = LocalInputs {
+            graph: &graph,
+            support: &support,
+            s_o: 2.0,
+            instances: &inst,
+            sources: &sources,
+            times,
+            redrawn: Redrawn::EveryRealization,
+            realizations: 10,
+            p: 1e-3,
+            p_single: 1e-3,
+        };
+        let terms = Terms {
+            supports: (0..n).map(|i| vec![i]).collect(),
+            weights: vec![1.0 / n as f64; n],
+            spectra: vec![[-1.0, 1.0]; n],
+        };
+        let whole = Exposure::new(&graph, &support, &inst, times).unwrap();
+        let by_term = term_bounds(&inp, &terms, &whole).unwrap();
+        (local_bounds_with(&inp, &whole), by_term)
+    }
+
+    #[test]
+    fn an_average_of_n_uncoupled_terms_fluctuates_like_one_over_root_n() {
+        let ns = [10usize, 100, 1000, 10_000];
+        let times = [0.5, 1.0];
+        let (mut whole, mut terms) = (Vec::new(), Vec::new());
+        for &n in &ns {
+            let (w, t) = averaged(n, &times);
+            assert_eq!(t.n_terms, n);
+            // Every source took the term-by-term form at t > 0.
+            assert_eq!(t.forms[1], [0, 0, n]);
+            whole.push(w[1].fluctuation);
+            terms.push(t.points[1].fluctuation);
+            // Never above the whole-support statement.
+            assert!(t.points[1].e_avg <= w[1].e_avg);
+        }
+        let xs: Vec<f64> = ns.iter().map(|&n| n as f64).collect();
+        let (st, sw) = (slope(&xs, &terms), slope(&xs, &whole));
+        assert!((st + 0.5).abs() < 0.05, "term-by-term exponent {st}");
+        assert!((sw - 0.5).abs() < 0.05, "whole-operator exponent {sw}");
+    }
+
+    /// A sum with one term, `w = 1` and the observable's spectrum, on the observable's
+    /// support: exactly the whole-support light-cone statement, and [`combine_all`] keeps it.
+    #[test]
+    fn a_single_term_gives_exactly_the_light_cone_statement_of_that_term() {
+        let l = Lattice::regular(Geometry::Chain, &[41], Boundary::Open).unwrap();
+        let inst = instances(&l, 0.05, 0.02);
+        let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
+        let graph = WalkGraph::new(&l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
+        let times = [0.0, 0.3, 1.0, 2.0];
+        let support = [20usize, 21];
+        let inp = LocalInputs {
+            graph: &graph,
+            support: &support,
+            s_o: 2.0,
+            instances: &inst,
+            sources: &sources,
+            times: &times,
+            redrawn: Redrawn::EveryRealization,
+            realizations: 5,
+            p: 1e-3,
+            p_single: 1e-3,
+        };
+        let whole = Exposure::new(&graph, &support, &inst, &times).unwrap();
+        let local = local_bounds_with(&inp, &whole);
+        let terms = Terms {
+            supports: vec![vec![21, 20]],
+            weights: vec![1.0],
+            spectra: vec![[-1.0, 1.0]],
+        };
+        let t = term_bounds(&inp, &terms, &whole).unwrap();
+        assert_eq!(t.points, local);
+        let inf = f64::INFINITY;
+        let global = PointBounds {
+            e_wc: inf,
+            e_sys: 0.0,
+            e_bias: 0.0,
+            fluctuation: inf,
+            route: None,
+            fluctuation_one: inf,
+            route_one: None,
+            e_one: inf,
+            e_avg: inf,
+            e_shot: 0.0,
+            shot_approximate: false,
+            half_width: inf,
+        };
+        for (a, b) in local.iter().zip(&t.points) {
+            let (p, st) = combine_all(&global, Some(a), Some(b));
+            assert_eq!(st, Statement::LightCone);
+            assert_eq!(p.e_avg, a.e_avg);
         }
     }
 
