@@ -22,11 +22,12 @@ bin=$PWD/target/release/quassay
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 
-# Wall-clock seconds of "$@", stdout and stderr discarded.
+# Wall-clock seconds of "$@", stdout and stderr discarded. Exit code 3 (certify: the random
+# benchmark data contradict the record) is an answer, not a failure.
 wall() {
   local t0 t1
   t0=$(date +%s.%N)
-  "$@" >/dev/null 2>&1
+  "$@" >/dev/null 2>&1 || [ $? -eq 3 ]
   t1=$(date +%s.%N)
   echo "$t1 - $t0" | bc -l
 }
@@ -49,8 +50,9 @@ while [ $i -lt ${#sizes[@]} ]; do
         wall "$bin" certify "$dir/run.h5" --noise "$dir/noise.json" -o "$dir/c.json"
       done | stats)
   rm -f "$dir/c.json"
-  rss=$(/usr/bin/time -f '%M' "$bin" certify "$dir/run.h5" --noise "$dir/noise.json" \
-          -o "$dir/c.json" 2>&1 >/dev/null | tail -1)
+  /usr/bin/time -f '%M' -o "$work/rss" "$bin" certify "$dir/run.h5" --noise "$dir/noise.json" \
+          -o "$dir/c.json" >/dev/null 2>&1 || [ $? -eq 3 ]
+  rss=$(tail -1 "$work/rss")
   read -r ob om <<<"$o"
   read -r cb cm <<<"$c"
   ratio=$(printf '%.2f/%.2f' "$(echo "$cb / $ob" | bc -l)" "$(echo "$cm / $om" | bc -l)")

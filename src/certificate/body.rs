@@ -93,7 +93,7 @@ pub fn build_body(
         })
         .collect();
     let split = &bounds.split;
-    json!({
+    let mut body = json!({
         "format": FORMAT,
         "format_version": FORMAT_VERSION,
         "tool": { "name": "quassay", "version": env!("CARGO_PKG_VERSION") },
@@ -127,11 +127,16 @@ pub fn build_body(
         "inputs": { "run": run_file, "noise_record": inputs.noise_record.to_json() },
         "run": run_json(run),
         "noise": noise_json(run, record, model),
-        "observables": observables_json(run, bounds),
         "fidelity": fidelity_json(run, bounds),
-        "checks": checks,
-        "verdict": verdict,
-    })
+    });
+    // The three large members are moved in: `json!` would serialise (copy) them, doubling the
+    // body's peak memory for runs with many points.
+    if let Value::Object(m) = &mut body {
+        m.insert("observables".into(), observables_json(run, bounds));
+        m.insert("checks".into(), checks);
+        m.insert("verdict".into(), verdict);
+    }
+    body
 }
 
 fn run_json(run: &RunOutline) -> Value {

@@ -12,7 +12,7 @@ use crate::certificate::body::CertifyOptions;
 use crate::certificate::certify::{compute_body, Computed};
 use crate::certificate::document::{envelope_now, Certificate};
 use crate::certificate::record::recorded_name;
-use crate::outputs::atomic::{check_free, write_bytes};
+use crate::outputs::atomic::check_free;
 
 /// The default certificate path: `RUN.cert.json` beside the run (`run.h5` → `run.cert.json`).
 pub fn default_output(run: &Path) -> PathBuf {
@@ -65,9 +65,11 @@ pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
     let (noise_name, noise_below) = recorded_name(&args.noise, &output);
     let computed = compute_body(&args.run, &args.noise, run_name, noise_name, &options);
     progress.done();
-    let computed = computed?;
-    let cert = Certificate::seal(computed.body.clone(), envelope_now())?;
-    write_bytes(&output, args.force, cert.to_file_text().as_bytes())?;
+    let mut computed = computed?;
+    // The body moves into the certificate (no copy: it can hold millions of numbers) and is
+    // streamed to the file.
+    let cert = Certificate::seal(std::mem::take(&mut computed.body), envelope_now())?;
+    cert.write_to(&output, args.force)?;
     if let Some(report) = &args.report {
         super::report::write_report(&cert, &output, report, args.force)?;
     }

@@ -59,7 +59,13 @@ pub fn write_run(path: &Path, run: &Run, options: &WriteOptions) -> Result<()> {
         path: path.to_path_buf(),
         message: format!("cannot write {item}: {e}"),
     };
-    let file = hdf5::File::create(path).map_err(|e| fail("the file", e))?;
+    // Without HDF5's file lock: the file is a fresh temporary one that only this call writes,
+    // and a lock would be inherited by any process spawned meanwhile (HDF5 does not mark its
+    // descriptors close-on-exec), making the next open of the file fail.
+    let file = hdf5::File::with_options()
+        .with_fapl(|p| p.file_locking(false))
+        .create(path)
+        .map_err(|e| fail("the file", e))?;
     let w = Writer {
         options: *options,
         path,

@@ -54,8 +54,10 @@ pub fn write_truth(path: &Path, truth: &Truth, ctx: &TruthContext) -> Result<()>
         path: path.to_path_buf(),
         message: format!("cannot write {item}: {e}"),
     };
+    // No file lock, as in `outputs::run_file`: a fresh temporary file only this call writes.
     let file = hdf5::FileBuilder::new()
         .with_fcpl(|p| p.obj_track_times(false))
+        .with_fapl(|p| p.file_locking(false))
         .create(path)
         .map_err(|e| err("the file", e))?;
     let w = W { err: &err };
