@@ -185,33 +185,10 @@ fn width_c2<'a>(it: impl Iterator<Item = (&'a SourceData, f64)>) -> Option<f64> 
 /// part concentrates conditionally on `g_D` (Gaussian route), the second is a function of
 /// `g_D` with the same bounded differences.
 pub fn route_mixed(sources: &[SourceData], sens: &[f64], p: f64) -> Option<f64> {
+    let half = 0.5 * p;
     let mut best: Option<f64> = None;
-    for both_to_gaussian in [true, false] {
-        let mut l2 = 0.0;
-        let mut c2 = 0.0;
-        for (s, &e) in sources.iter().zip(sens) {
-            if !active(s, e) {
-                continue;
-            }
-            let kappa = s.constants.kappa;
-            let finite = s.constants.width.is_finite();
-            let to_gaussian = match (kappa, finite) {
-                (Some(_), true) => both_to_gaussian,
-                (Some(_), false) => true,
-                (None, true) => false,
-                (None, false) => return None,
-            };
-            if to_gaussian {
-                let term = s.delta * kappa.unwrap_or(0.0) * e;
-                l2 += term * term;
-            } else {
-                let c = s.delta * s.constants.width * e;
-                c2 += c * c;
-            }
-        }
-        let half = 0.5 * p;
-        let r = l2.sqrt() * (2.0 * (2.0 / half).ln()).sqrt()
-            + c2.sqrt() * (0.5 * (2.0 / half).ln()).sqrt();
+    for (l, c) in mixed_constants(sources, sens)? {
+        let r = l * (2.0 * (2.0 / half).ln()).sqrt() + c * (0.5 * (2.0 / half).ln()).sqrt();
         best = Some(best.map_or(r, |b: f64| b.min(r)));
     }
     best
