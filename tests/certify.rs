@@ -8,60 +8,20 @@
 //! against the NumPy side file of the fixture and against the formulas of bounds.md §3.
 
 use std::path::{Path, PathBuf};
-use std::sync::OnceLock;
 
 use quassay::certificate::canonical::to_canonical_bytes;
-use quassay::certificate::hash::{sha256_file, sha256_hex};
+use quassay::certificate::hash::sha256_file;
 use quassay::certificate::record::dataset_digests;
 use quassay::inputs::run_file::read_run;
 use quassay::outputs::run_file::{write_run, WriteOptions};
 use serde_json::Value;
 
-use crate::util::{entries, quassay, reference, repo, scratch};
+use crate::util::{
+    certified, digest_of, entries, numbers, observable, quassay, reference, scratch,
+};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers
-
-fn validator() -> &'static jsonschema::Validator {
-    static V: OnceLock<jsonschema::Validator> = OnceLock::new();
-    V.get_or_init(|| {
-        let text = std::fs::read_to_string(repo().join("schemas/certificate.schema.json")).unwrap();
-        let schema: Value = serde_json::from_str(&text).unwrap();
-        // The schema must itself be a valid draft 2020-12 schema.
-        assert!(jsonschema::meta::is_valid(&schema));
-        jsonschema::draft202012::new(&schema).unwrap()
-    })
-}
-
-/// SHA-256 of the RFC 8785 form of `body`, computed here from the library's canonicaliser
-/// (itself tested against the RFC 8785 examples) and FIPS 180-4 hash.
-fn digest_of(body: &Value) -> String {
-    sha256_hex(&to_canonical_bytes(body).unwrap())
-}
-
-/// Reads a certificate that a test produced, asserts that it validates against the schema and
-/// that its digest is the digest of its body, and returns it. Every certify test calls this.
-fn certified(path: &Path) -> Value {
-    let text = std::fs::read_to_string(path).unwrap();
-    let cert: Value = serde_json::from_str(&text).unwrap();
-    let errors: Vec<String> = validator()
-        .iter_errors(&cert)
-        .map(|e| format!("{} at {}", e, e.instance_path))
-        .collect();
-    assert!(
-        errors.is_empty(),
-        "{} does not validate against the schema:\n{}",
-        path.display(),
-        errors.join("\n")
-    );
-    assert_eq!(
-        cert["digest"].as_str().unwrap(),
-        digest_of(&cert["body"]),
-        "{}: the digest is not that of the body",
-        path.display()
-    );
-    cert
-}
 
 /// A fresh folder holding the h5py fixture as `run.h5` and a noise record as `noise.json`.
 struct Case {
@@ -149,23 +109,6 @@ fn write_resealed(path: &Path, cert: &mut Value) {
     write_cert(path, cert);
 }
 
-fn column(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
-}
-
-fn observable<'a>(cert: &'a Value, name: &str) -> &'a Value {
-    cert["body"]["observables"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|o| o["name"] == name)
-        .unwrap_or_else(|| panic!("no observable {name}"))
-}
-
 // ---------------------------------------------------------------------------------------------
 // A certificate, its schema and its re-verification
 
@@ -211,19 +154,19 @@ fn the_certificate_states_the_numbers_numpy_stored_and_hoeffdings_shot_term() {
         .as_array()
         .unwrap()
         .iter()
-        .map(column)
+        .map(numbers)
         .collect();
     let shots: Vec<Vec<f64>> = side["observables"]["Z_1"]["shots"]
         .as_array()
         .unwrap()
         .iter()
-        .map(column)
+        .map(numbers)
         .collect();
     let r = values.len() as f64;
-    let mean = column(&z["mean"]);
-    let e_shot = column(&z["e_shot"]);
-    let times = column(&cert["body"]["run"]["times"]);
-    assert_eq!(times, column(&side["times"]));
+    let mean = numbers(&z["mean"]);
+    let e_shot = numbers(&z["e_shot"]);
+    let times = numbers(&cert["body"]["run"]["times"]);
+    assert_eq!(times, numbers(&side["times"]));
     // Simultaneous over T·K = 5·2 points, p = α = 0.05/2 (bounds.md §3): α per point = 0.0025.
     let alpha = 0.025 / 10.0;
     let split = &cert["body"]["claim"]["probability_split"];
@@ -243,9 +186,9 @@ fn the_certificate_states_the_numbers_numpy_stored_and_hoeffdings_shot_term() {
     }
     // The interval is [mean − e_avg − e_shot, mean + e_avg + e_shot].
     let (e_avg, lower, upper) = (
-        column(&z["e_avg"]),
-        column(&z["lower"]),
-        column(&z["upper"]),
+        numbers(&z["e_avg"]),
+        numbers(&z["lower"]),
+        numbers(&z["upper"]),
     );
     for k in 0..times.len() {
         let h = e_avg[k] + e_shot[k];
@@ -457,8 +400,8 @@ fn the_same_noise_in_mhz_and_in_rad_per_us_gives_the_same_bounds() {
         }
     };
     close(
-        &column(&ca["body"]["noise"]["sources"][0]["delta"]),
-        &column(&cb["body"]["noise"]["sources"][0]["delta"]),
+        &numbers(&ca["body"]["noise"]["sources"][0]["delta"]),
+        &numbers(&cb["body"]["noise"]["sources"][0]["delta"]),
         "delta",
     );
     assert_eq!(ca["body"]["noise"]["frequency_unit"], "MHz");
@@ -467,15 +410,15 @@ fn the_same_noise_in_mhz_and_in_rad_per_us_gives_the_same_bounds() {
     for name in ["Z_1", "ZZ_mean"] {
         for q in ["e_avg", "e_wc", "e_bias", "fluctuation", "e_one", "e_shot"] {
             close(
-                &column(&observable(&ca, name)[q]),
-                &column(&observable(&cb, name)[q]),
+                &numbers(&observable(&ca, name)[q]),
+                &numbers(&observable(&cb, name)[q]),
                 &format!("{name} {q}"),
             );
         }
     }
     close(
-        &column(&ca["body"]["fidelity"]["f_low"]),
-        &column(&cb["body"]["fidelity"]["f_low"]),
+        &numbers(&ca["body"]["fidelity"]["f_low"]),
+        &numbers(&cb["body"]["fidelity"]["f_low"]),
         "f_low",
     );
 }
@@ -558,8 +501,8 @@ fn claims_name_the_probability_and_the_observable_and_pointwise_says_so() {
     // Pointwise gives each point all of p: smaller intervals than the simultaneous claim.
     let sim = c.certify_to("sim95.json", &[]);
     let (s, p) = (
-        column(&observable(&sim, "Z_1")["e_shot"]),
-        column(&observable(&pw, "Z_1")["e_shot"]),
+        numbers(&observable(&sim, "Z_1")["e_shot"]),
+        numbers(&observable(&pw, "Z_1")["e_shot"]),
     );
     assert!(s.iter().zip(&p).all(|(s, p)| p < s));
     verify(&c.path("pw.json"), &[], 0);
@@ -585,7 +528,7 @@ fn the_json_summaries_of_certify_and_verify_have_their_documented_fields() {
     assert_eq!(rows.len(), 2);
     for row in rows {
         let o = observable(&cert, row["name"].as_str().unwrap());
-        let times = column(&cert["body"]["run"]["times"]);
+        let times = numbers(&cert["body"]["run"]["times"]);
         let k = times
             .iter()
             .position(|&t| t == row["worst_time"].as_f64().unwrap())

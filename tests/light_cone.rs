@@ -8,13 +8,10 @@
 //! statement must be the one used, and must be smaller than the global one.
 
 use std::path::Path;
-use std::sync::OnceLock;
 
-use quassay::certificate::canonical::to_canonical_bytes;
-use quassay::certificate::hash::sha256_hex;
 use serde_json::{json, Value};
 
-use crate::util::{quassay, repo, scratch};
+use crate::util::{certified, numbers, observable, quassay, scratch, strings, truth};
 
 /// Tolerance of the exact simulation (the propagator is exact to about 1e-10 in the state).
 const SIM_TOL: f64 = 1e-8;
@@ -78,15 +75,8 @@ fn certify(dir: &Path) -> (String, Value) {
         .code(0);
     let stdout = String::from_utf8(out.get_output().stdout.clone()).unwrap();
     let path = dir.join("run.cert.json");
-    let cert: Value = serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
-    let errors: Vec<String> = validator()
-        .iter_errors(&cert)
-        .map(|e| format!("{} at {}", e, e.instance_path))
-        .collect();
-    assert!(errors.is_empty(), "schema: {}", errors.join("\n"));
-    // SHA-256 (FIPS 180-4) of the RFC 8785 form of the body.
-    let digest = sha256_hex(&to_canonical_bytes(&cert["body"]).unwrap());
-    assert_eq!(cert["digest"].as_str().unwrap(), digest);
+    // Schema (schemas/certificate.schema.json) and digest (RFC 8785 + FIPS 180-4 SHA-256).
+    let cert = certified(&path);
     (stdout, cert)
 }
 
@@ -99,45 +89,6 @@ fn verifies(dir: &Path) {
         .code(0);
     let stdout = String::from_utf8(out.get_output().stdout.clone()).unwrap();
     assert!(stdout.contains("identical, byte for byte"), "{stdout}");
-}
-
-fn validator() -> &'static jsonschema::Validator {
-    static V: OnceLock<jsonschema::Validator> = OnceLock::new();
-    V.get_or_init(|| {
-        let text = std::fs::read_to_string(repo().join("schemas/certificate.schema.json")).unwrap();
-        jsonschema::draft202012::new(&serde_json::from_str(&text).unwrap()).unwrap()
-    })
-}
-
-fn numbers(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .unwrap_or_else(|| panic!("not a column: {v}"))
-        .iter()
-        .map(|x| x.as_f64().unwrap())
-        .collect()
-}
-
-fn strings(v: &Value) -> Vec<&str> {
-    v.as_array()
-        .unwrap()
-        .iter()
-        .map(|x| x.as_str().unwrap())
-        .collect()
-}
-
-fn observable<'a>(cert: &'a Value, name: &str) -> &'a Value {
-    cert["body"]["observables"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|o| o["name"] == name)
-        .unwrap_or_else(|| panic!("no observable {name}"))
-}
-
-/// A dataset of `truth.h5` (written by the simulator, read here with the hdf5 library).
-fn truth(dir: &Path, path: &str) -> ndarray::ArrayD<f64> {
-    let f = hdf5::File::open(dir.join("truth.h5")).unwrap();
-    f.dataset(path).unwrap().read_dyn::<f64>().unwrap()
 }
 
 #[test]

@@ -36,3 +36,84 @@ pub fn entries(dir: &Path) -> Vec<String> {
     v.sort();
     v
 }
+
+// ---------------------------------------------------------------------------------------------
+// Certificates and simulator truth, shared by the certify, light-cone and sums tests.
+
+/// The certificate schema (`schemas/certificate.schema.json`), compiled once; the schema must
+/// itself be a valid draft 2020-12 schema.
+pub fn certificate_validator() -> &'static jsonschema::Validator {
+    static V: std::sync::OnceLock<jsonschema::Validator> = std::sync::OnceLock::new();
+    V.get_or_init(|| {
+        let text = std::fs::read_to_string(repo().join("schemas/certificate.schema.json")).unwrap();
+        let schema: serde_json::Value = serde_json::from_str(&text).unwrap();
+        assert!(jsonschema::meta::is_valid(&schema));
+        jsonschema::draft202012::new(&schema).unwrap()
+    })
+}
+
+/// SHA-256 (FIPS 180-4) of the RFC 8785 form of `body`, from the library's canonicaliser
+/// (itself tested against the RFC 8785 examples).
+pub fn digest_of(body: &serde_json::Value) -> String {
+    quassay::certificate::hash::sha256_hex(
+        &quassay::certificate::canonical::to_canonical_bytes(body).unwrap(),
+    )
+}
+
+/// Reads a certificate that a test produced, asserts that it validates against the schema and
+/// that its digest is the digest of its body, and returns it. Every certifying test calls this.
+pub fn certified(path: &Path) -> serde_json::Value {
+    let text = std::fs::read_to_string(path).unwrap();
+    let cert: serde_json::Value = serde_json::from_str(&text).unwrap();
+    let errors: Vec<String> = certificate_validator()
+        .iter_errors(&cert)
+        .map(|e| format!("{} at {}", e, e.instance_path))
+        .collect();
+    assert!(
+        errors.is_empty(),
+        "{} does not validate against the schema:\n{}",
+        path.display(),
+        errors.join("\n")
+    );
+    assert_eq!(
+        cert["digest"].as_str().unwrap(),
+        digest_of(&cert["body"]),
+        "{}: the digest is not that of the body",
+        path.display()
+    );
+    cert
+}
+
+/// A column of numbers of a certificate body.
+pub fn numbers(v: &serde_json::Value) -> Vec<f64> {
+    v.as_array()
+        .unwrap_or_else(|| panic!("not a column: {v}"))
+        .iter()
+        .map(|x| x.as_f64().unwrap())
+        .collect()
+}
+
+/// A column of strings of a certificate body.
+pub fn strings(v: &serde_json::Value) -> Vec<&str> {
+    v.as_array()
+        .unwrap_or_else(|| panic!("not an array: {v}"))
+        .iter()
+        .map(|x| x.as_str().unwrap())
+        .collect()
+}
+
+/// The member of `body.observables` named `name`.
+pub fn observable<'a>(cert: &'a serde_json::Value, name: &str) -> &'a serde_json::Value {
+    cert["body"]["observables"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|o| o["name"] == name)
+        .unwrap_or_else(|| panic!("no observable {name}"))
+}
+
+/// A dataset of `truth.h5` in `dir` (written by the simulator, read with the hdf5 library).
+pub fn truth(dir: &Path, path: &str) -> ndarray::ArrayD<f64> {
+    let f = hdf5::File::open(dir.join("truth.h5")).unwrap();
+    f.dataset(path).unwrap().read_dyn::<f64>().unwrap()
+}
