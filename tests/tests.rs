@@ -1,12 +1,15 @@
-//! Integration tests: one binary, one module per area (ripgrep's layout).
+//! Integration tests: one binary, one module per area, so the crate is linked once.
 
 mod util;
 
+mod batch;
 mod bounds_exact;
 mod budget;
 mod certify;
+mod hostile;
 mod light_cone;
 mod noise_record;
+mod properties;
 mod rehearsal;
 mod report;
 mod review;
