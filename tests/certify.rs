@@ -665,13 +665,31 @@ fn data_that_contradict_the_record_exit_3_and_the_claim_says_so() {
     let cert = certified(&c.path("run.cert.json"));
     let v = &cert["body"]["verdict"];
     assert_eq!(v["status"], "inconsistent");
-    let failures = v["failures"].as_array().unwrap();
-    assert!(failures
+    assert!(v["failed_at_time_zero"].as_u64().unwrap() >= 1, "{v}");
+    // checks.failures: per observable and test, the failed time indices; each one's adjusted
+    // p-value (in checks.observables) is at most the check level.
+    let checks = &cert["body"]["checks"];
+    let groups = checks["failures"].as_array().unwrap();
+    assert!(groups
         .iter()
-        .any(|f| f["time_index"] == 0 && f["category"] == "preparation_or_measurement"));
-    for f in failures {
-        assert!(f["adjusted_p_value"].as_f64().unwrap() <= 0.01, "{f}");
+        .any(|g| g["category"] == "preparation_or_measurement"
+            && g["time_indices"].as_array().unwrap().contains(&0.into())));
+    let mut named = 0;
+    for g in groups {
+        let o = checks["observables"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|o| o["name"] == g["observable"])
+            .unwrap();
+        let p = &o[g["test"].as_str().unwrap()]["adjusted_p_value"];
+        for i in g["time_indices"].as_array().unwrap() {
+            let i = i.as_u64().unwrap() as usize;
+            assert!(p[i].as_f64().unwrap() <= 0.01, "{g}");
+            named += 1;
+        }
     }
+    assert_eq!(named, v["failed_tests"].as_u64().unwrap());
     for cl in cert["body"]["claim"]["per_observable"].as_array().unwrap() {
         assert!(cl["text"]
             .as_str()

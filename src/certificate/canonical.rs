@@ -5,10 +5,10 @@
 //! ECMAScript's `JSON.stringify` does, and numbers written as ECMAScript's
 //! `Number.prototype.toString` writes IEEE 754 doubles (RFC 8785 §3.2.2.3).
 //!
-//! Numbers: Rust's `{:e}` formatting gives the number of digits of the shortest string that
-//! round-trips; the digits themselves are then taken from Rust's exact formatting at that
-//! precision (nearest, ties to even), which is ECMAScript's choice among candidates of that
-//! length. The layout (plain or exponent form, `e+`/`e-`) is ECMAScript's and done here.
+//! Numbers: the `zmij` crate (Schubfach, the printer serde_json uses) gives the shortest
+//! digits that round-trip, nearest to the value; an exact tie between two such candidates is
+//! resolved to the even one here, which is ECMAScript's choice among candidates of that
+//! length (checked against Python's `repr` on 13 294 numbers and RFC 8785 Appendix B). The layout (plain or exponent form, `e+`/`e-`) is ECMAScript's and done here.
 //! serde_json integers are converted to the nearest double first, as RFC 8785 §3.2.2.3 says
 //! (integers beyond 2^53 lose precision there, by design of the scheme).
 
@@ -267,23 +267,55 @@ impl Write for Digits {
     }
 }
 
-/// The significant digits (ASCII, no point) and the decimal exponent of `{:e}` or `{:.Ne}`
-/// output for a positive finite `x`: `x ≈ 0.d₁d₂… × 10^n` is returned as `(digits, n)`.
-fn digits_of(formatted: &[u8]) -> Option<(&[u8], i32)> {
-    let e = formatted.iter().position(|&c| c == b'e')?;
-    let exp: i32 = std::str::from_utf8(&formatted[e + 1..])
-        .ok()?
-        .parse()
-        .ok()?;
-    Some((&formatted[..e], exp + 1))
+/// The significant digits (ASCII, no leading or trailing zeros, at most 20), their count k
+/// and the decimal exponent n of a positive number printed by `zmij` (plain, `1.5`, or
+/// scientific, `1.5e-7`, `3.4e+35`): the value is `0.d₁…d_k × 10^n`. `None` if the text is
+/// not of that shape (it always is for a positive finite double).
+fn shortest_digits(text: &str) -> Option<([u8; 20], usize, i32)> {
+    let (mantissa, exp) = match text.find(['e', 'E']) {
+        Some(i) => (&text[..i], text[i + 1..].parse::<i32>().ok()?),
+        None => (text, 0),
+    };
+    let mut digits = [0u8; 20];
+    let mut k = 0;
+    // Position of the decimal point among all mantissa digits (leading zeros included).
+    let mut point = None;
+    let mut seen = 0i32;
+    let mut leading = 0i32;
+    for c in mantissa.bytes() {
+        match c {
+            b'.' => point = Some(seen),
+            b'0'..=b'9' => {
+                seen += 1;
+                if k == 0 && c == b'0' {
+                    leading += 1;
+                    continue;
+                }
+                if k == digits.len() {
+                    return None;
+                }
+                digits[k] = c;
+                k += 1;
+            }
+            _ => return None,
+        }
+    }
+    while k > 0 && digits[k - 1] == b'0' {
+        k -= 1;
+    }
+    if k == 0 {
+        return None;
+    }
+    let point = point.unwrap_or(seen);
+    Some((digits, k, point - leading + exp))
 }
 
 /// Appends the ECMAScript form of `x` to `out`; `false` (nothing written) if `x` is not
 /// finite.
 ///
-/// Digits: Rust's `{:e}` gives the shortest string that round-trips, and of those the one
-/// nearest to x; its length k is ECMAScript's (Number::toString step 5: k as small as
-/// possible, then the k-digit value nearest to x, ties to the even one). `{:e}` may pick the
+/// Digits: `zmij` (Schubfach) gives the shortest string that round-trips, and of those the
+/// one nearest to x; its length k is ECMAScript's (Number::toString step 5: k as small as
+/// possible, then the k-digit value nearest to x, ties to the even one). It may pick the
 /// odd one of an exact tie (RFC 8785 Appendix B: 1424953923781206.25 → …206.2). A tie is
 /// detected exactly in integer arithmetic ([`tie_partner`]); then the even partner is taken
 /// if it reads back as x (both do, except at a power of two, where the rounding interval
@@ -308,26 +340,10 @@ fn write_number(x: f64, out: &mut String) -> bool {
         let _ = write!(out, "{}", a as u64);
         return true;
     }
-    let mut shortest = Digits {
-        buf: [0; 40],
-        len: 0,
-    };
-    if write!(shortest, "{a:e}").is_err() {
-        return false;
-    }
-    let Some((mantissa, n)) = digits_of(&shortest.buf[..shortest.len]) else {
+    let mut buffer = zmij::Buffer::new();
+    let Some((mut digits, mut k, mut n)) = shortest_digits(buffer.format_finite(a)) else {
         return false;
     };
-    let mut digits = [0u8; 20];
-    let mut k = 0;
-    for &c in mantissa.iter().filter(|c| c.is_ascii_digit()) {
-        if k == digits.len() {
-            return false;
-        }
-        digits[k] = c;
-        k += 1;
-    }
-    let mut n = n;
     if let Some(partner) = tie_partner(a, &digits[..k], n) {
         let mut even = Digits {
             buf: [0; 40],

@@ -696,7 +696,6 @@ impl ChecksReport {
 
     /// The verdict for the certificate body.
     pub fn verdict_json(&self) -> Value {
-        let failures: Vec<Value> = self.failures.iter().map(failure_json).collect();
         let level = self.check_level;
         let (status, text) = if let Some(why) = &self.not_performed {
             (
@@ -740,7 +739,8 @@ impl ChecksReport {
             ("status", json!(status)),
             ("check_level", num(level)),
             ("tests", json!(self.n_tests)),
-            ("failures", Value::Array(failures)),
+            ("failed_tests", json!(self.failures.len())),
+            ("failed_at_time_zero", json!(self.preparation_failures())),
             ("text", Value::String(text)),
         ])
     }
@@ -787,10 +787,7 @@ impl ChecksReport {
                 "observables",
                 Value::Array(self.observables.iter().map(observable_json).collect()),
             ),
-            (
-                "failures",
-                Value::Array(self.failures.iter().map(failure_json).collect()),
-            ),
+            ("failures", failures_json(&self.failures)),
         ])
     }
 }
@@ -912,23 +909,38 @@ fn observable_json(oc: &ObservableChecks) -> Value {
     ])
 }
 
-fn failure_json(f: &Failure) -> Value {
-    let statistic = match f.test {
-        TestKind::Variance => "chi_square",
-        TestKind::IdealReference => "deviation_over_half_width",
-    };
-    json!({
-        "observable": f.observable,
-        "time_index": f.time_index,
-        "time": num(f.time),
-        "test": f.test.as_str(),
-        "category": f.category.as_str(),
-        "statistic": statistic,
-        "statistic_value": num(f.statistic),
-        "p_value": num(f.p_value),
-        "adjusted_p_value": num(f.adjusted_p_value),
-        "distribution_free_rejects": f.distribution_free_rejects,
-    })
+/// The failed tests, grouped: one entry per observable, test and category, with the time
+/// indices that failed, in observable order, then variance before ideal reference, then t = 0
+/// before t > 0. The statistics and p-values of every point are in `checks.observables`, so
+/// they are not repeated here: a run whose every point fails would otherwise carry its
+/// statistics twice (tens of megabytes for T × K = 32 000 points).
+fn failures_json(failures: &[Failure]) -> Value {
+    const ORDER: [(TestKind, Category); 4] = [
+        (TestKind::Variance, Category::PreparationOrMeasurement),
+        (TestKind::Variance, Category::NoiseRecord),
+        (TestKind::IdealReference, Category::PreparationOrMeasurement),
+        (TestKind::IdealReference, Category::IdealReference),
+    ];
+    let mut out = Vec::new();
+    // Failures come in observable order; one observable's failures are contiguous.
+    for group in failures.chunk_by(|a, b| a.observable == b.observable) {
+        for (test, category) in ORDER {
+            let indices: Vec<Value> = group
+                .iter()
+                .filter(|f| f.test == test && f.category == category)
+                .map(|f| json!(f.time_index))
+                .collect();
+            if !indices.is_empty() {
+                out.push(object([
+                    ("observable", json!(group[0].observable)),
+                    ("test", json!(test.as_str())),
+                    ("category", json!(category.as_str())),
+                    ("time_indices", Value::Array(indices)),
+                ]));
+            }
+        }
+    }
+    Value::Array(out)
 }
 
 #[cfg(test)]
@@ -1121,11 +1133,29 @@ mod tests {
         }
         let v = bad.verdict_json();
         assert_eq!(v["status"], "inconsistent");
-        assert_eq!(
-            v["failures"].as_array().unwrap().len(),
-            bad.failures().len()
-        );
-        assert!(v["failures"][0]["adjusted_p_value"].as_f64().unwrap() <= 0.01);
+        assert_eq!(v["failed_tests"], bad.failures().len());
+        assert_eq!(v["failed_at_time_zero"], 0);
+        // The grouped list names every failure once, and each named point's adjusted p-value
+        // (kept in `observables`) is at most the level.
+        let all = bad.to_json();
+        let groups = all["failures"].as_array().unwrap();
+        let mut named = 0;
+        for g in groups {
+            let k = all["observables"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .position(|o| o["name"] == g["observable"])
+                .unwrap();
+            let test = g["test"].as_str().unwrap();
+            let p = &all["observables"][k][test]["adjusted_p_value"];
+            for i in g["time_indices"].as_array().unwrap() {
+                let i = i.as_u64().unwrap() as usize;
+                assert!(p[i].as_f64().unwrap() <= 0.01, "{g}");
+                named += 1;
+            }
+        }
+        assert_eq!(named, bad.failures().len());
     }
 
     /// One realization: the variance tests are reported as not possible, with the reason;
