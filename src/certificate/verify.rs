@@ -24,6 +24,10 @@ use super::record::{resolve_recorded, FileRecord};
 use crate::bounds::confidence::Simultaneity;
 use crate::error::{Error, InputKind, Result};
 
+/// What a certificate is, for messages about a path that is not one.
+pub const CERTIFICATE: &str = "a certificate (JSON, format quassay-certificate v1)";
+const INPUT_FILE: &str = "the archived input the certificate records (a regular file)";
+
 /// The result of a verification.
 #[derive(Debug, Clone, PartialEq)]
 pub struct VerifyReport {
@@ -164,6 +168,8 @@ fn recorded_file(cert_path: &Path, body: &Value, role: &str) -> Result<FileRecor
 /// certificate's folder). Input errors (unreadable files) are `Err`; a certificate that does not
 /// reproduce is `Ok` with `reproduces == false`.
 pub fn verify(cert_path: &Path, inputs_dir: Option<&Path>) -> Result<VerifyReport> {
+    // A FIFO or device given as the certificate would block or never end the read.
+    crate::inputs::regular::check_regular(cert_path, CERTIFICATE)?;
     let cert = Certificate::read(cert_path)?;
     let mut lines = Vec::new();
     let fail = |mut lines: Vec<String>, why: String| {
@@ -198,6 +204,9 @@ pub fn verify(cert_path: &Path, inputs_dir: Option<&Path>) -> Result<VerifyRepor
             Ok(p) => p,
             Err(why) => return fail(lines, format!("FAILED: input `{role}`: {why}")),
         };
+        // The recorded name could now be a FIFO, a device or a folder: hashing it would block
+        // or never end, so anything but a regular file is refused first.
+        crate::inputs::regular::check_regular(&path, INPUT_FILE)?;
         let now = FileRecord::of(&path, rec.path.clone())?;
         if now.size != rec.size || now.sha256 != rec.sha256 {
             if role == "run" {

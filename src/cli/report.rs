@@ -40,6 +40,11 @@ pub fn write_report(
 /// Runs `report`.
 pub fn run(args: &ReportArgs) -> crate::Result<Outcome> {
     check_free(&args.output, args.force)?;
+    // A FIFO or device given as the certificate would block or never end the read.
+    crate::inputs::regular::check_regular(
+        &args.certificate,
+        crate::certificate::verify::CERTIFICATE,
+    )?;
     let cert = Certificate::read(&args.certificate)?;
     write_report(&cert, &args.certificate, &args.output, args.force)?;
     let mut note = String::new();

@@ -55,6 +55,11 @@ fn positive(text: &str) -> Result<f64, String> {
 
 /// Runs `review`.
 pub fn run(args: &ReviewArgs) -> crate::Result<Outcome> {
+    // A FIFO or device given as the certificate would block or never end the read.
+    crate::inputs::regular::check_regular(
+        &args.certificate,
+        crate::certificate::verify::CERTIFICATE,
+    )?;
     let cert = Certificate::read(&args.certificate)?;
     let mut steps = Vec::new();
     let digest_ok = cert.digest_matches();

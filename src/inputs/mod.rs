@@ -4,5 +4,6 @@
 //! return checked models from [`crate::model`].
 
 pub mod noise_record;
+pub mod regular;
 pub mod run_file;
 pub mod scenario;

@@ -26,10 +26,11 @@ pub use check::{FORMAT, FORMAT_VERSION};
 
 /// Reads and checks the noise record at `path`.
 pub fn read_noise_record(path: &Path) -> crate::Result<NoiseRecord> {
-    let bytes = std::fs::read(path).map_err(|source| Error::Read {
-        path: path.to_path_buf(),
-        source,
-    })?;
+    // A folder, FIFO or device is refused before it is read (reading a FIFO would block).
+    let bytes = crate::inputs::regular::read_regular(
+        path,
+        "a noise record (JSON, format quassay-noise v1)",
+    )?;
     let fail = |problems| Error::Input {
         kind: InputKind::NoiseRecord,
         file: path.to_path_buf(),
@@ -73,6 +74,13 @@ pub fn noise_record_from_value(value: &serde_json::Value) -> Result<NoiseRecord,
 
 /// The problem for a file that is not UTF-8: where the first bad byte is.
 fn utf8_problem(bytes: &[u8], e: &std::str::Utf8Error) -> Problem {
+    if bytes.starts_with(&[0xff, 0xfe]) || bytes.starts_with(&[0xfe, 0xff]) {
+        return Problem::new(
+            "/",
+            "is not valid UTF-8: it starts with a UTF-16 byte-order mark (the file was saved as \
+             UTF-16); save it as UTF-8",
+        );
+    }
     let good = &bytes[..e.valid_up_to()];
     let line = 1 + good.iter().filter(|&&b| b == b'\n').count();
     let line_start = good.iter().rposition(|&b| b == b'\n').map_or(0, |i| i + 1);

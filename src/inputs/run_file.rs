@@ -28,6 +28,7 @@ use crate::error::{Error, InputKind, Problem, Result};
 use crate::model::Run;
 
 pub use checks::{range_tolerance, valid_name};
+pub use observables::recycle_values;
 pub use stream::{ContentSink, NoContent, ObservableOutline, ObservableRead, RunOutline};
 
 /// What `inspect` shows of a run file: whatever could be read, even from a file with problems.
@@ -157,7 +158,7 @@ pub fn read_run(path: &Path) -> Result<Run> {
 /// Reads a run file as far as possible, collecting every problem.
 ///
 /// Fails only if the file cannot be opened as HDF5 at all: [`Error::Read`] for a missing or
-/// unreadable path or a folder, [`Error::Input`] (one problem at `/`) for a file that is empty
+/// unreadable path, a folder, a FIFO or a device, [`Error::Input`] (one problem at `/`) for a file that is empty
 /// or not HDF5.
 pub fn inspect_run(path: &Path) -> Result<RunInspection> {
     let stream = open_run(path)?;
@@ -319,24 +320,17 @@ impl RunStream {
     }
 }
 
+/// What a run file is, for messages about a path that is not one.
+const RUN_FILE: &str = "a run file (HDF5, layout quassay-run v1)";
+
 /// Opens `path` read-only as HDF5, with the failures a user can cause told apart.
 fn open(path: &Path) -> Result<hdf5::File> {
     hdf5::silence_errors(true);
-    let read_err = |source: std::io::Error| Error::Read {
-        path: path.to_path_buf(),
-        source,
-    };
-    let meta = std::fs::metadata(path).map_err(read_err)?;
-    if meta.is_dir() {
-        return Err(read_err(std::io::Error::new(
-            std::io::ErrorKind::IsADirectory,
-            "it is a folder; give the path of a run file (HDF5, layout quassay-run v1)",
-        )));
-    }
-    // Reading one byte tells a permission problem from a format problem.
-    std::fs::File::open(path).map_err(read_err)?;
+    // A folder, FIFO or device is refused before HDF5 opens the path (a FIFO would block the
+    // open forever); opening it here also tells a permission problem from a format problem.
+    let len = crate::inputs::regular::check_regular(path, RUN_FILE)?;
     let not_run = |message: String| Error::input(InputKind::Run, path, "/", message);
-    if meta.len() == 0 {
+    if len == 0 {
         return Err(not_run(
             "the file is empty (0 bytes), so it is not an HDF5 run file; was it copied or written completely?"
                 .to_string(),
@@ -349,8 +343,20 @@ fn open(path: &Path) -> Result<hdf5::File> {
         .with_fapl(|p| p.file_locking(false))
         .open(path)
         .map_err(|e| {
-        not_run(format!(
-            "is not an HDF5 file that can be opened (HDF5 says: {e}); give a run file written in HDF5 layout quassay-run v1 (see docs/run-format.md)"
-        ))
-    })
+            let words = e.to_string();
+            if words.contains("truncated file") {
+                // HDF5 compares the file's size with the end address its superblock records.
+                not_run(format!(
+                    "is truncated: it has {len} bytes, fewer than its HDF5 superblock records (HDF5 says: {words}); copy the file again completely from its source"
+                ))
+            } else if words.contains("signature not found") {
+                not_run(format!(
+                    "is not an HDF5 file: it does not start with the HDF5 signature (HDF5 says: {words}); give a run file written in HDF5 layout quassay-run v1 (see docs/run-format.md)"
+                ))
+            } else {
+                not_run(format!(
+                    "is not an HDF5 file that can be opened (HDF5 says: {words}); the file may be damaged: copy it again from its source, or give a run file written in HDF5 layout quassay-run v1 (see docs/run-format.md)"
+                ))
+            }
+        })
 }

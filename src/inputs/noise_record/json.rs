@@ -26,6 +26,13 @@ pub(super) struct Loaded {
 
 /// Parses `text` as one JSON document; a syntax error becomes a single problem at `/`.
 pub(super) fn load(text: &str) -> Result<Loaded, Problem> {
+    if text.trim().is_empty() {
+        return Err(Problem::new(
+            "/",
+            "is empty (no JSON value in it); was the file written completely? A noise record is \
+             one JSON object (see docs/noise-record.md)",
+        ));
+    }
     let mut duplicates = Vec::new();
     let mut de = serde_json::Deserializer::from_str(text);
     let value = Seed {
@@ -33,13 +40,20 @@ pub(super) fn load(text: &str) -> Result<Loaded, Problem> {
         duplicates: &mut duplicates,
     }
     .deserialize(&mut de)
-    .map_err(|e| syntax_problem(&e))?;
-    de.end().map_err(|e| syntax_problem(&e))?;
+    .map_err(|e| syntax_problem(text, &e))?;
+    de.end().map_err(|e| syntax_problem(text, &e))?;
     Ok(Loaded { value, duplicates })
 }
 
+/// Whether the line of `text` where `e` occurred holds `NaN` or `Infinity`, which JavaScript
+/// and Python write for non-finite numbers but JSON (RFC 8259 §6) does not allow.
+fn non_finite_literal(text: &str, e: &serde_json::Error) -> bool {
+    let line = text.lines().nth(e.line().saturating_sub(1)).unwrap_or("");
+    line.contains("NaN") || line.contains("Infinity")
+}
+
 /// Turns a serde_json error into a problem that gives the line, the column and a fix.
-fn syntax_problem(e: &serde_json::Error) -> Problem {
+fn syntax_problem(text: &str, e: &serde_json::Error) -> Problem {
     let full = e.to_string();
     // serde_json appends " at line L column C"; we state the place ourselves.
     let what = match full.rfind(" at line ") {
@@ -50,6 +64,12 @@ fn syntax_problem(e: &serde_json::Error) -> Problem {
         "the arrays/objects are nested more than 128 levels deep; a noise record needs at most 5"
     } else if what.contains("number out of range") {
         "a number is too large for a 64-bit float (beyond about 1.8e308); write a finite value"
+    } else if non_finite_literal(text, e) {
+        "NaN and Infinity are not JSON numbers (RFC 8259 §6); every value of a noise record must \
+         be a finite number"
+    } else if text.starts_with('\u{feff}') {
+        "the file starts with more than one byte-order mark (U+FEFF); remove them and save the \
+         file as UTF-8"
     } else if e.is_eof() {
         "the file ends too early; close every string, array and object"
     } else {
@@ -200,6 +220,23 @@ mod tests {
         let text = format!("{}{}", "[".repeat(100_000), "]".repeat(100_000));
         let e = load(&text).unwrap_err();
         assert!(e.message.contains("nested more than 128"), "{}", e.message);
+    }
+
+    #[test]
+    fn non_finite_literals_empty_text_and_a_second_mark_get_their_own_fix() {
+        for text in ["{\"a\": NaN}", "{\"a\": -Infinity}", "[Infinity]"] {
+            let e = load(text).unwrap_err();
+            assert!(
+                e.message.contains("NaN and Infinity are not JSON"),
+                "{}",
+                e.message
+            );
+        }
+        for text in ["", " \n\t"] {
+            assert!(load(text).unwrap_err().message.contains("is empty"));
+        }
+        let e = load("\u{feff}{}").unwrap_err();
+        assert!(e.message.contains("byte-order mark"), "{}", e.message);
     }
 
     #[test]

@@ -69,6 +69,34 @@ pub fn attr_problem(c: &mut Collector, at: &str, name: &str, message: impl std::
     c.problem(at, format!("attribute `{name}` {message}"));
 }
 
+/// The fix for an HDF5 read that failed with `e`: when HDF5's words say the stored bytes are
+/// damaged (a compressed chunk that does not inflate, a checksum that fails, an address past
+/// the end of the file), rewriting the item with another type cannot help, so the message says
+/// the file is corrupt; otherwise `otherwise` (a storage change) is the fix.
+pub fn read_fix(e: &hdf5::Error, otherwise: &str) -> String {
+    const DAMAGE: [&str; 11] = [
+        "inflate",
+        "filter",
+        "checksum",
+        "eoa",
+        "addr overflow",
+        "address overflow",
+        "truncated",
+        "corrupt",
+        "bad ",
+        "signature",
+        "b-tree",
+    ];
+    let words = e.to_string().to_lowercase();
+    if DAMAGE.iter().any(|d| words.contains(d)) {
+        "the stored bytes are damaged (the file is corrupt or was cut short); copy the file \
+         again from its source, or write it again"
+            .to_string()
+    } else {
+        otherwise.to_string()
+    }
+}
+
 /// `path` of member `name` of the group at `at`.
 pub fn child_path(at: &str, name: &str) -> String {
     if at == "/" {
@@ -161,7 +189,15 @@ pub fn string_attr(
             None
         }
         Err(e) => {
-            attr_problem(c, at, name, format!("cannot be read as a string ({e}); rewrite it as a variable-length UTF-8 string"));
+            attr_problem(
+                c,
+                at,
+                name,
+                format!(
+                    "cannot be read as a string ({e}); {}",
+                    read_fix(&e, "rewrite it as a variable-length UTF-8 string")
+                ),
+            );
             None
         }
     }
@@ -203,7 +239,10 @@ pub fn int_values_attr(
                 c,
                 at,
                 name,
-                format!("cannot be read as integers ({e}); rewrite it as int64"),
+                format!(
+                    "cannot be read as integers ({e}); {}",
+                    read_fix(&e, "rewrite it as int64")
+                ),
             );
             None
         }
@@ -290,7 +329,10 @@ pub fn f64_attr(
                 c,
                 at,
                 name,
-                format!("cannot be read as a number ({e}); store it as float64"),
+                format!(
+                    "cannot be read as a number ({e}); {}",
+                    read_fix(&e, "store it as float64")
+                ),
             );
             None
         }
@@ -321,7 +363,13 @@ pub fn f64_dataset(c: &mut Collector, ds: &Dataset, path: &str) -> Option<(Array
     match ds.read_dyn::<f64>() {
         Ok(a) => Some((a, stored)),
         Err(e) => {
-            c.problem(path, format!("cannot be read ({e}); rewrite it as float64"));
+            c.problem(
+                path,
+                format!(
+                    "cannot be read ({e}); {}",
+                    read_fix(&e, "rewrite it as float64")
+                ),
+            );
             None
         }
     }
@@ -418,7 +466,13 @@ pub fn int_dataset(c: &mut Collector, ds: &Dataset, path: &str) -> Option<ArrayD
     match read {
         Ok(a) => Some(a),
         Err(e) => {
-            c.problem(path, format!("cannot be read ({e}); rewrite it as int64"));
+            c.problem(
+                path,
+                format!(
+                    "cannot be read ({e}); {}",
+                    read_fix(&e, "rewrite it as int64")
+                ),
+            );
             None
         }
     }
