@@ -24,7 +24,7 @@ use crate::bounds::run_bounds::{ObservableBounds, RunBounds, RunEvaluator, RunGe
 use crate::checks::report::{CheckPlan, ChecksReport, ObservableChecks};
 use crate::error::{Error, InputKind, Result};
 use crate::inputs::noise_record::read_noise_record;
-use crate::inputs::run_file::{open_run, ContentSink, NoContent, RunOutline};
+use crate::inputs::run_file::{open_run, recycle_values, ContentSink, NoContent, RunOutline};
 use crate::model::{NoiseModel, NoiseRecord};
 
 /// Everything a certificate is computed from, read and checked (the run without its R × T
@@ -232,6 +232,9 @@ fn stream_run(
             observables.push(b);
         }
         small.push(small_digests(&o.outline));
+        if let Some(whole) = o.kept {
+            recycle_values(whole.values);
+        }
     })?;
     let bounds = ev.map(|ev| ev.finish(observables));
     let checks = plan.map(|p| p.finish(checked));

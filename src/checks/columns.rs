@@ -66,9 +66,17 @@ pub struct ColumnStats {
 impl ColumnStats {
     /// The statistics of `o`, each array read once in row order.
     pub fn of(o: &Observable) -> ColumnStats {
+        ColumnStats::with_mean(o, None)
+    }
+
+    /// As [`ColumnStats::of`], with the per-time means already known: `Σ_r v[r, k] / R` summed
+    /// in realization order, as the streaming reader and the bounds compute them
+    /// ([`crate::bounds::run_bounds::ObservableSums`]), the same bits as the first pass here.
+    /// The values are then read once instead of twice. Ignored unless there is one per time.
+    pub fn with_mean(o: &Observable, mean: Option<&[f64]>) -> ColumnStats {
         let (rows, cols) = o.values.dim();
         let (mean, variance) = if rows >= 2 {
-            mean_and_variance_per_column(o, cols)
+            mean_and_variance_per_column(o, cols, mean.filter(|m| m.len() == cols))
         } else {
             (vec![f64::NAN; cols], vec![f64::NAN; cols])
         };
@@ -120,23 +128,43 @@ impl ColumnStats {
 
 /// The two-pass mean and variance of [`super::variance::mean_and_variance`], for every column
 /// at once (`rows ≥ 2`).
-fn mean_and_variance_per_column(o: &Observable, cols: usize) -> (Vec<f64>, Vec<f64>) {
+fn mean_and_variance_per_column(
+    o: &Observable,
+    cols: usize,
+    known_mean: Option<&[f64]>,
+) -> (Vec<f64>, Vec<f64>) {
     let n = o.values.nrows();
-    let mut sum = vec![0.0; cols];
-    for row in o.values.rows() {
-        for (s, &v) in sum.iter_mut().zip(row.iter()) {
-            *s += v;
+    // Rows as slices (contiguous in the common standard layout, so the per-time loops
+    // vectorise across times); each time's sums are taken in realization order either way.
+    let standard;
+    let values = match o.values.as_slice() {
+        Some(v) => v,
+        None => {
+            standard = o.values.as_standard_layout().into_owned();
+            standard.as_slice().unwrap_or(&[])
         }
-    }
-    let mean: Vec<f64> = sum.iter().map(|s| s / n as f64).collect();
+    };
+    let rows = || values.chunks_exact(cols.max(1));
+    let mean: Vec<f64> = match known_mean {
+        Some(m) => m.to_vec(),
+        None => {
+            let mut sum = vec![0.0; cols];
+            for row in rows() {
+                for (s, &v) in sum.iter_mut().zip(row) {
+                    *s += v;
+                }
+            }
+            sum.iter().map(|s| s / n as f64).collect()
+        }
+    };
     let mut squares = vec![0.0; cols];
     let mut residual = vec![0.0; cols];
-    for row in o.values.rows() {
+    for row in rows() {
         for (((q, e), &m), &v) in squares
             .iter_mut()
             .zip(residual.iter_mut())
             .zip(&mean)
-            .zip(row.iter())
+            .zip(row)
         {
             let d = v - m;
             *q += d * d;
@@ -171,6 +199,30 @@ mod tests {
             description: None,
             terms: None,
         }
+    }
+
+    /// The mean the bounds compute from the streamed sums (`Σ_r v / R`, realization order) is
+    /// the first pass's mean bit for bit, so `with_mean` gives the statistics of `of`.
+    #[test]
+    fn the_streamed_mean_gives_the_two_pass_statistics() {
+        let (r, t) = (53, 9);
+        let values = Array2::from_shape_fn((r, t), |(i, k)| {
+            -2e5 + ((i * 11 + k * 5) as f64).cos() * 3e-2 + i as f64 * 1e-7
+        });
+        let o = observable(values.clone(), Shots::Uniform(100), None);
+        let mut sums = vec![0.0; t];
+        for row in values.rows() {
+            for (s, &x) in sums.iter_mut().zip(row) {
+                *s += x;
+            }
+        }
+        let mean: Vec<f64> = sums.iter().map(|s| s / r as f64).collect();
+        assert_eq!(ColumnStats::with_mean(&o, Some(&mean)), ColumnStats::of(&o));
+        // A mean of the wrong length is ignored.
+        assert_eq!(
+            ColumnStats::with_mean(&o, Some(&mean[1..])),
+            ColumnStats::of(&o)
+        );
     }
 
     /// Values on a large offset with a spread over six decades: the row-by-row sums give the

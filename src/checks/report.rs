@@ -361,7 +361,9 @@ impl<'a> CheckPlan<'a> {
         let s_o = o.spread();
         let mut points = Vec::with_capacity(self.times.len());
         if self.not_performed.is_none() {
-            let stats = ColumnStats::of(o);
+            // `mean` is the bounds' v̄ (the streamed sums over R): the first pass of the
+            // variance, already done.
+            let stats = ColumnStats::with_mean(o, Some(mean));
             // The global sensitivities s_O·t, refilled per time (no allocation per point).
             let mut global = Vec::with_capacity(self.sources.len());
             for (k, &t) in self.times.iter().enumerate() {
