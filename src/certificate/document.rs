@@ -101,22 +101,38 @@ impl Certificate {
             path: path.to_path_buf(),
             source,
         })?;
-        let bad = |p: &str, m: String| Error::input(InputKind::Certificate, path, p, m);
-        let text = String::from_utf8(bytes).map_err(|e| {
-            bad(
+        Certificate::from_bytes(&bytes).map_err(|problems| Error::Input {
+            kind: InputKind::Certificate,
+            file: path.to_path_buf(),
+            problems,
+        })
+    }
+
+    /// Parses the bytes of a certificate file (what [`Certificate::read`] does once the file
+    /// is read): they must be UTF-8, then as [`Certificate::parse`]. No I/O.
+    pub fn from_bytes(bytes: &[u8]) -> std::result::Result<Certificate, Vec<Problem>> {
+        let text = std::str::from_utf8(bytes).map_err(|e| {
+            vec![Problem::new(
                 "/",
-                format!("is not UTF-8 text (byte {})", e.utf8_error().valid_up_to()),
-            )
+                format!("is not UTF-8 text (byte {})", e.valid_up_to()),
+            )]
         })?;
-        let v: Value = serde_json::from_str(&text).map_err(|e| {
-            bad(
+        Certificate::parse(text)
+    }
+
+    /// Parses the text of a certificate file and checks its outer structure (format, version,
+    /// digest, body); every problem found is returned. The digest is not compared here: see
+    /// [`Certificate::digest_matches`]. No I/O.
+    pub fn parse(text: &str) -> std::result::Result<Certificate, Vec<Problem>> {
+        let mut v: Value = serde_json::from_str(text).map_err(|e| {
+            vec![Problem::new(
                 "/",
                 format!(
                     "is not valid JSON: {e} (line {}, column {})",
                     e.line(),
                     e.column()
                 ),
-            )
+            )]
         })?;
         let mut problems = Vec::new();
         if v.get("format").and_then(Value::as_str) != Some(FORMAT) {
@@ -135,7 +151,11 @@ impl Certificate {
         if digest.is_none() {
             problems.push(Problem::new("/digest", "is missing or not a string"));
         }
-        let body = v.get("body").filter(|b| b.is_object()).cloned();
+        // Moved out of the parsed document, not copied (a body may be large).
+        let body = match v.get_mut("body") {
+            Some(b) if b.is_object() => Some(b.take()),
+            _ => None,
+        };
         if body.is_none() {
             problems.push(Problem::new("/body", "is missing or not an object"));
         }
@@ -143,13 +163,12 @@ impl Certificate {
             (Some(digest), Some(body), true) => Ok(Certificate {
                 body,
                 digest,
-                envelope: v.get("envelope").cloned().unwrap_or(Value::Null),
+                envelope: v
+                    .get_mut("envelope")
+                    .map(Value::take)
+                    .unwrap_or(Value::Null),
             }),
-            _ => Err(Error::Input {
-                kind: InputKind::Certificate,
-                file: path.to_path_buf(),
-                problems,
-            }),
+            _ => Err(problems),
         }
     }
 
@@ -254,6 +273,28 @@ mod tests {
         assert_eq!(Certificate::read(&path).unwrap(), c);
         assert!(c.write_to(&path, false).is_err());
         c.write_to(&path, true).unwrap();
+    }
+
+    /// The entry points without I/O: bad bytes, bad JSON and a wrong outer structure are
+    /// problems (all of them at once), never a panic; the text of a sealed certificate reads
+    /// back as that certificate.
+    #[test]
+    fn bytes_and_text_parse_without_io() {
+        let p = Certificate::from_bytes(b"{\"format\": \"\xff\"}").unwrap_err();
+        assert_eq!(p.len(), 1);
+        assert_eq!(p[0].path, "/");
+        assert!(p[0].message.contains("not UTF-8 text (byte 12)"), "{p:?}");
+        let p = Certificate::parse("{\"body\": ").unwrap_err();
+        assert!(p[0].message.contains("not valid JSON"), "{p:?}");
+        let p = Certificate::parse("{\"format\": \"x\", \"body\": []}").unwrap_err();
+        let paths: Vec<&str> = p.iter().map(|p| p.path.as_str()).collect();
+        assert_eq!(paths, ["/format", "/format_version", "/digest", "/body"]);
+        let c = Certificate::seal(json!({"a": [1, 2.5]}), json!({"host": "h"})).unwrap();
+        assert_eq!(Certificate::parse(&c.to_file_text()).unwrap(), c);
+        assert_eq!(
+            Certificate::from_bytes(c.to_file_text().as_bytes()).unwrap(),
+            c
+        );
     }
 
     #[test]
