@@ -57,15 +57,20 @@ pub struct SimulateArgs {
     pub seed: Option<u64>,
 }
 
-/// `quassay certify RUN.h5 --noise NOISE.json`.
+/// `quassay certify RUN.h5 --noise NOISE.json`, or several runs and folders of runs
+/// (docs/batch.md).
 #[derive(Debug, Args)]
 pub struct CertifyArgs {
-    /// The run file (HDF5, layout quassay-run v1).
-    pub run: PathBuf,
-    /// The noise record (JSON, format quassay-noise v1).
+    /// The run file (HDF5, layout quassay-run v1); or several run files and folders, each
+    /// folder giving its *.h5 files, certified in parallel with one certificate each.
+    #[arg(required = true, value_name = "RUN.h5|DIR")]
+    pub runs: Vec<PathBuf>,
+    /// The noise record (JSON, format quassay-noise v1), used for every run [default: the
+    /// record beside each run: RUN.noise.json, else noise.json in the run's folder].
     #[arg(long, value_name = "NOISE.json")]
-    pub noise: PathBuf,
-    /// Where to write the certificate [default: RUN.cert.json beside the run].
+    pub noise: Option<PathBuf>,
+    /// Where to write the certificate, for a single run [default: RUN.cert.json beside the
+    /// run].
     #[arg(short = 'o', long = "output", value_name = "CERT.json")]
     pub output: Option<PathBuf>,
     /// Confidence level 1 - epsilon of the claim, strictly between 0 and 1.
@@ -83,9 +88,12 @@ pub struct CertifyArgs {
     /// Replace an existing certificate (and report).
     #[arg(long)]
     pub force: bool,
-    /// Also write a self-contained HTML report with plots of the certificate.
+    /// Also write a self-contained HTML report with plots of the certificate, for a single run.
     #[arg(long, value_name = "REPORT.html")]
     pub report: Option<PathBuf>,
+    /// Also write a report beside each certificate, as RUN.report.html.
+    #[arg(long, conflicts_with = "report")]
+    pub reports: bool,
 }
 
 /// `quassay verify CERT.json`.

@@ -1,4 +1,7 @@
 //! `quassay certify`: bounds and certificate for one run, and a compact summary table.
+//!
+//! Several runs, or folders of runs, go to [`super::batch`], which certifies each through
+//! `certify_one` as a single run is certified here.
 
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -23,34 +26,34 @@ pub fn default_output(run: &Path) -> PathBuf {
     run.with_file_name(format!("{stem}.cert.json"))
 }
 
+/// The default report path for `--reports`: `RUN.report.html` beside the run.
+pub fn default_report(run: &Path) -> PathBuf {
+    let stem = run
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "run".into());
+    run.with_file_name(format!("{stem}.report.html"))
+}
+
 /// A short note on standard error while the work runs, only when it is a terminal.
-struct Progress(bool);
+pub(super) struct Progress(pub(super) bool);
 
 impl Progress {
-    fn say(&self, what: &str) {
+    pub(super) fn say(&self, what: &str) {
         if self.0 {
             eprint!("\r\x1b[2Kcertify: {what}");
         }
     }
-    fn done(&self) {
+    pub(super) fn done(&self) {
         if self.0 {
             eprint!("\r\x1b[2K");
         }
     }
 }
 
-/// Runs `certify`.
-pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
-    let output = args
-        .output
-        .clone()
-        .unwrap_or_else(|| default_output(&args.run));
-    // Refuse early, before any work, if the certificate exists; checked again at the rename.
-    check_free(&output, args.force)?;
-    if let Some(report) = &args.report {
-        check_free(report, args.force)?;
-    }
-    let options = CertifyOptions {
+/// The library's options from the command line.
+pub(super) fn options_of(args: &CertifyArgs) -> CertifyOptions {
+    CertifyOptions {
         confidence: args.confidence,
         simultaneity: if args.pointwise {
             Simultaneity::Pointwise
@@ -58,20 +61,57 @@ pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
             Simultaneity::Simultaneous
         },
         check_level: args.check_level,
-    };
-    let progress = Progress(std::io::stderr().is_terminal());
+    }
+}
+
+/// One run to certify: its inputs, where its outputs go, and how.
+pub(super) struct Job<'a> {
+    pub run: &'a Path,
+    pub noise: &'a Path,
+    pub output: &'a Path,
+    pub report: Option<&'a Path>,
+    pub options: &'a CertifyOptions,
+    pub force: bool,
+}
+
+/// A certificate written, with what produced it and the notes for the summary.
+pub(super) struct Certified {
+    pub cert: Certificate,
+    pub computed: Computed,
+    pub notes: Vec<String>,
+}
+
+impl Certified {
+    /// Whether the data are consistent with the record (exit 0) or not (exit 3).
+    pub fn outcome(&self) -> Outcome {
+        if self.computed.checks.consistent() {
+            Outcome::Success
+        } else {
+            Outcome::Negative
+        }
+    }
+}
+
+/// Certifies one run: computes the body, writes the certificate (and the report), and returns
+/// them. Nothing is printed on standard output.
+pub(super) fn certify_one(job: &Job, progress: &Progress) -> crate::Result<Certified> {
+    // Refuse early, before any work, if the certificate exists; checked again at the rename.
+    check_free(job.output, job.force)?;
+    if let Some(report) = job.report {
+        check_free(report, job.force)?;
+    }
     progress.say("reading and hashing the inputs, computing the bounds");
-    let (run_name, run_below) = recorded_name(&args.run, &output);
-    let (noise_name, noise_below) = recorded_name(&args.noise, &output);
-    let computed = compute_body(&args.run, &args.noise, run_name, noise_name, &options);
+    let (run_name, run_below) = recorded_name(job.run, job.output);
+    let (noise_name, noise_below) = recorded_name(job.noise, job.output);
+    let computed = compute_body(job.run, job.noise, run_name, noise_name, job.options);
     progress.done();
     let mut computed = computed?;
     // The body moves into the certificate (no copy: it can hold millions of numbers) and is
     // streamed to the file.
     let cert = Certificate::seal(std::mem::take(&mut computed.body), envelope_now())?;
-    cert.write_to(&output, args.force)?;
-    if let Some(report) = &args.report {
-        super::report::write_report(&cert, &output, report, args.force)?;
+    cert.write_to(job.output, job.force)?;
+    if let Some(report) = job.report {
+        super::report::write_report(&cert, job.output, report, job.force)?;
     }
     let mut notes = Vec::new();
     if !(run_below && noise_below) {
@@ -81,22 +121,63 @@ pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
                 .to_string(),
         );
     }
+    Ok(Certified {
+        cert,
+        computed,
+        notes,
+    })
+}
+
+/// Runs `certify`: one run file as before, or a batch (several runs, or folders of runs).
+pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
+    match args.runs.as_slice() {
+        [one] if !one.is_dir() => run_single(args, one),
+        _ => super::batch::run(args),
+    }
+}
+
+/// Certifies a single run and prints its summary table (or JSON).
+fn run_single(args: &CertifyArgs, run: &Path) -> crate::Result<Outcome> {
+    let output = args.output.clone().unwrap_or_else(|| default_output(run));
+    let noise = match &args.noise {
+        Some(n) => n.clone(),
+        None => super::batch::record_beside(run).map_err(crate::Error::Options)?,
+    };
+    let report = match (&args.report, args.reports) {
+        (Some(r), _) => Some(r.clone()),
+        (None, true) => Some(default_report(run)),
+        (None, false) => None,
+    };
+    let options = options_of(args);
+    let progress = Progress(std::io::stderr().is_terminal());
+    let done = certify_one(
+        &Job {
+            run,
+            noise: &noise,
+            output: &output,
+            report: report.as_deref(),
+            options: &options,
+            force: args.force,
+        },
+        &progress,
+    )?;
     let text = if args.json {
-        let mut s = serde_json::to_string_pretty(&summary_json(&output, &cert, &computed, &notes))
-            .unwrap_or_default();
+        let mut s = serde_json::to_string_pretty(&summary_json(
+            &output,
+            &done.cert,
+            &done.computed,
+            &done.notes,
+        ))
+        .unwrap_or_default();
         s.push('\n');
         s
     } else {
-        summary_text(&output, &cert, &computed, &notes)
+        summary_text(&output, &done.cert, &done.computed, &done.notes)
     };
     print_stdout(&text)?;
     // Exit 3 when the data contradict the noise record; the certificate is written all the
     // same, and its claim says so.
-    Ok(if computed.checks.consistent() {
-        Outcome::Success
-    } else {
-        Outcome::Negative
-    })
+    Ok(done.outcome())
 }
 
 /// The verdict's status word (`consistent`, `inconsistent` or `not_tested`).
@@ -173,7 +254,7 @@ fn rows(c: &Computed) -> Vec<Row> {
 }
 
 /// A number for the table: three significant digits, `unbounded` for infinity.
-fn show(x: f64) -> String {
+pub(super) fn show(x: f64) -> String {
     if x.is_infinite() {
         "unbounded".into()
     } else if x.is_nan() {
@@ -190,7 +271,7 @@ fn show(x: f64) -> String {
     }
 }
 
-fn last_fidelity(c: &Computed) -> String {
+pub(super) fn last_fidelity(c: &Computed) -> String {
     match c.bounds.fidelity.last() {
         Some(f) if f.vacuous => "vacuous".into(),
         Some(f) => show(f.f_low),
@@ -295,7 +376,12 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
     s
 }
 
-fn summary_json(output: &Path, cert: &Certificate, c: &Computed, notes: &[String]) -> Value {
+pub(super) fn summary_json(
+    output: &Path,
+    cert: &Certificate,
+    c: &Computed,
+    notes: &[String],
+) -> Value {
     use crate::certificate::body::num;
     let observables: Vec<Value> = rows(c)
         .into_iter()

@@ -5,6 +5,7 @@
 //! not an error.
 
 pub mod args;
+pub mod batch;
 pub mod budget;
 pub mod certify;
 pub mod inspect;
@@ -27,6 +28,24 @@ pub enum Outcome {
     Success,
     /// Exit 3: the work ran but the answer is negative.
     Negative,
+    /// Exit 1: some of the work failed on bad input or I/O (a batch whose other items went
+    /// on); every failure was already reported.
+    Failed,
+    /// Exit 2: a usage error found after parsing (e.g. `-o` with several runs); already
+    /// reported.
+    Usage,
+}
+
+impl Outcome {
+    /// The exit code of this outcome.
+    pub fn code(self) -> u8 {
+        match self {
+            Outcome::Success => 0,
+            Outcome::Negative => EXIT_NEGATIVE,
+            Outcome::Failed => EXIT_INPUT,
+            Outcome::Usage => EXIT_USAGE,
+        }
+    }
 }
 
 /// Exit code for a bad input or an I/O error.
@@ -56,8 +75,7 @@ pub fn main() -> ExitCode {
         Command::Report(a) => report::run(a),
     };
     match result {
-        Ok(Outcome::Success) => ExitCode::SUCCESS,
-        Ok(Outcome::Negative) => ExitCode::from(EXIT_NEGATIVE),
+        Ok(outcome) => ExitCode::from(outcome.code()),
         Err(e) => {
             let _ = writeln!(std::io::stderr(), "error: {e}");
             ExitCode::from(EXIT_INPUT)
