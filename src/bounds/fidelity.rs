@@ -4,9 +4,10 @@
 //! `F ≥ (1 − D²/2)²` when `D ≤ √2`. With failure probability `p` (one-sided):
 //! `D_p = t (Σ δ_i m_i + √(Σ δ_i² σ_i²) + fluct)`, where the fluctuation of `D` around its
 //! mean comes from Gaussian concentration (route G: `√(Σ δ_i² κ_i²) √(2 ln(1/p))`), bounded
-//! differences (route D: `√(Σ δ_i² w_i²) √(ln(1/p)/2)`), or, for records where neither applies
-//! to every source, the two groups with `p/2` each (an extension of bounds.md §4 by the same
-//! argument as the mixed route of §3, docs/method.md §4). Worst case
+//! differences (route D: `√(Σ δ_i² w_i²) √(ln(1/p)/2)`), or the two groups with `p/2` each
+//! (an extension of bounds.md §4 by the same argument as the mixed route of §3,
+//! docs/method.md §4; the only route where neither G nor D applies to every source, and a
+//! candidate beside them otherwise), the smallest kept. Worst case
 //! `D_wc = t Σ δ_i (b_i + m_i)`. Sums are over non-negative terms in instance order.
 
 use super::global::{FluctuationRoute, SourceData};
@@ -88,7 +89,9 @@ pub fn fidelity_bound(sources: &[SourceData], t: f64, p: f64) -> FidelityBound {
         if all_width {
             consider(ld(w2, p), FluctuationRoute::BoundedDifferences);
         }
-        if !all_kappa && !all_width && mixed_ok {
+        // The mixed split is a candidate also where G or D applies (as in
+        // `global::fluctuation`): otherwise adding a source could lower `D_p`.
+        if mixed_ok {
             for (k2m, w2m) in mixed {
                 consider(lg(k2m, 0.5 * p) + ld(w2m, 0.5 * p), FluctuationRoute::Mixed);
             }

@@ -195,7 +195,14 @@ pub fn route_mixed(sources: &[SourceData], sens: &[f64], p: f64) -> Option<f64> 
 }
 
 /// The fluctuation radius `r(p)` (two-sided, failure probability `p`): the smallest of the
-/// routes that apply (G, D; the mixed route when neither applies).
+/// routes that apply (G, D and the mixed route; ties go to G, then D).
+///
+/// The mixed route is a candidate also where G or D applies: a record of normal sources and
+/// truncated normals with cutoff below their σ has only route G, yet the split (normals to G,
+/// truncated normals to D) can be far smaller; without it, adding one two-point source (which
+/// leaves only the mixed route) could *lower* `r` (found by the property tests of
+/// `tests/properties.rs`). With every candidate kept, each is non-decreasing in the sources,
+/// so `r` is too.
 pub fn fluctuation(sources: &[SourceData], sens: &[f64], p: f64) -> Fluctuation {
     if p.is_nan() || p <= 0.0 {
         return Fluctuation {
@@ -209,7 +216,12 @@ pub fn fluctuation(sources: &[SourceData], sens: &[f64], p: f64) -> Fluctuation 
         (Some(g), Some(d)) if d < g => Some((d, FluctuationRoute::BoundedDifferences)),
         (Some(g), _) => Some((g, FluctuationRoute::Gaussian)),
         (None, Some(d)) => Some((d, FluctuationRoute::BoundedDifferences)),
-        (None, None) => route_mixed(sources, sens, p).map(|m| (m, FluctuationRoute::Mixed)),
+        (None, None) => None,
+    };
+    let pick = match (pick, route_mixed(sources, sens, p)) {
+        (Some((v, _)), Some(m)) if m < v => Some((m, FluctuationRoute::Mixed)),
+        (None, Some(m)) => Some((m, FluctuationRoute::Mixed)),
+        (pick, _) => pick,
     };
     match pick {
         Some((value, route)) => Fluctuation {
@@ -235,8 +247,8 @@ pub struct FluctuationScale {
     /// `C = √(Σ c_i²)` of route D; `None` if an active source is unbounded.
     pub bounded_differences: Option<f64>,
     /// `(L, C)` of the two candidates of the mixed route (sources with both constants all in
-    /// the Gaussian group, then all in the bounded-difference group); only computed when
-    /// neither G nor D applies, `None` then if no route applies.
+    /// the Gaussian group, then all in the bounded-difference group); `None` if an active
+    /// source has neither constant.
     pub mixed: Option<[(f64, f64); 2]>,
 }
 
@@ -244,11 +256,7 @@ pub struct FluctuationScale {
 pub fn fluctuation_scale(sources: &[SourceData], sens: &[f64]) -> FluctuationScale {
     let gaussian = gaussian_l2(sources.iter().zip(sens.iter().copied())).map(f64::sqrt);
     let bounded_differences = width_c2(sources.iter().zip(sens.iter().copied())).map(f64::sqrt);
-    let mixed = if gaussian.is_none() && bounded_differences.is_none() {
-        mixed_constants(sources, sens)
-    } else {
-        None
-    };
+    let mixed = mixed_constants(sources, sens);
     FluctuationScale {
         gaussian,
         bounded_differences,
@@ -304,16 +312,21 @@ impl FluctuationScale {
             (Some(g), Some(d)) if d < g => Some((d, FluctuationRoute::BoundedDifferences)),
             (Some(g), _) => Some((g, FluctuationRoute::Gaussian)),
             (None, Some(d)) => Some((d, FluctuationRoute::BoundedDifferences)),
-            (None, None) => self.mixed.map(|candidates| {
-                let half = 0.5 * p;
-                let mut best: Option<f64> = None;
-                for (l, c) in candidates {
-                    let r =
-                        l * (2.0 * (2.0 / half).ln()).sqrt() + c * (0.5 * (2.0 / half).ln()).sqrt();
-                    best = Some(best.map_or(r, |b: f64| b.min(r)));
-                }
-                (best.unwrap_or(f64::INFINITY), FluctuationRoute::Mixed)
-            }),
+            (None, None) => None,
+        };
+        let mixed = self.mixed.map(|candidates| {
+            let half = 0.5 * p;
+            let mut best: Option<f64> = None;
+            for (l, c) in candidates {
+                let r = l * (2.0 * (2.0 / half).ln()).sqrt() + c * (0.5 * (2.0 / half).ln()).sqrt();
+                best = Some(best.map_or(r, |b: f64| b.min(r)));
+            }
+            best.unwrap_or(f64::INFINITY)
+        });
+        let pick = match (pick, mixed) {
+            (Some((v, _)), Some(m)) if m < v => Some((m, FluctuationRoute::Mixed)),
+            (None, Some(m)) => Some((m, FluctuationRoute::Mixed)),
+            (pick, _) => pick,
         };
         match pick {
             Some((value, route)) => Fluctuation {
@@ -774,6 +787,33 @@ mod tests {
                 }
             }
         }
+    }
+
+    /// Regression (found by tests/properties.rs): a truncated normal with cutoff below its σ
+    /// and a normal source have only route G; adding a quiet two-point source left only the
+    /// mixed route, which was smaller, so adding a source lowered `r`. The mixed split is now a
+    /// candidate beside G and D.
+    #[test]
+    fn adding_a_source_never_lowers_the_fluctuation() {
+        let tn = Family::TruncatedNormal {
+            sigma: 2.2597299275101563,
+            cutoff: 1.0,
+        };
+        let before = vec![
+            source(tn, 1.0, 0.0),
+            source(Family::Normal { sigma: 1.0 }, 1.0, 0.0),
+        ];
+        let mut after = before.clone();
+        after.insert(0, source(Family::TwoPoint, 0.004294126611186434, 0.0));
+        let p = 0.5011872336272722;
+        let r0 = fluctuation(&before, &global_sensitivities(2, 0.25, 1.0), p);
+        let r1 = fluctuation(&after, &global_sensitivities(3, 0.25, 1.0), p);
+        assert_eq!(r0.route, Some(FluctuationRoute::Mixed));
+        assert_eq!(r1.route, Some(FluctuationRoute::Mixed));
+        assert!(r0.value <= r1.value, "{} > {}", r0.value, r1.value);
+        // Route G alone (what `fluctuation` gave before) is larger than the mixed split here.
+        let g = route_gaussian(&before, &global_sensitivities(2, 0.25, 1.0), p).unwrap();
+        assert!(r0.value < g);
     }
 
     /// The route constants rescale to `fluctuation` bit for bit, for every route (G, D,
