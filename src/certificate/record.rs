@@ -28,6 +28,9 @@ pub struct FileRecord {
 impl FileRecord {
     /// Hashes `file` and records it under the name `recorded`.
     pub fn of(file: &Path, recorded: String) -> Result<FileRecord> {
+        // A FIFO or device would block the read or never end it (certify hashes the run on a
+        // thread of its own, which a hang would keep from being joined).
+        crate::inputs::regular::check_regular(file, "a regular file")?;
         let (size, sha256) = sha256_file(file).map_err(|source| Error::Read {
             path: file.to_path_buf(),
             source,
