@@ -43,6 +43,12 @@ use crate::Error;
 /// The record beside `run`: `RUN.noise.json`, else `noise.json` in the run's folder; the
 /// message says which files were looked for and the fix.
 pub fn record_beside(run: &Path) -> Result<PathBuf, String> {
+    if !run.exists() {
+        return Err(format!(
+            "run file '{}' does not exist; check the path",
+            run.display()
+        ));
+    }
     let stem = run
         .file_stem()
         .map(|s| s.to_string_lossy().into_owned())
@@ -309,7 +315,11 @@ fn certify_item(run: &Path, args: &CertifyArgs, options: &CertifyOptions) -> Lin
             Ok(n) => n,
             Err(message) => {
                 return Line::Failed {
-                    short: "no noise record".into(),
+                    short: if run.exists() {
+                        "no noise record".into()
+                    } else {
+                        "no such run file".into()
+                    },
                     message,
                     problems: Vec::new(),
                 }
@@ -614,6 +624,8 @@ fn table_json(planned: &[Planned], results: &[Line]) -> Value {
 /// Prints a usage error as clap does (on standard error) and returns its outcome (exit 2).
 fn usage(message: &str) -> Outcome {
     let mut cli = Cli::command();
+    // Sets the sub-command's name for the usage line (`quassay certify`).
+    cli.build();
     let e = match cli.find_subcommand_mut("certify") {
         Some(sub) => sub.error(clap::error::ErrorKind::ArgumentConflict, message),
         None => cli.error(clap::error::ErrorKind::ArgumentConflict, message),
@@ -698,6 +710,8 @@ mod tests {
     fn the_record_beside_a_run_is_found_by_its_stem_first() {
         let d = tempfile::tempdir().unwrap();
         let run = d.path().join("r1.h5");
+        assert!(record_beside(&run).unwrap_err().contains("does not exist"));
+        touch(&run);
         assert!(record_beside(&run).unwrap_err().contains("--noise"));
         touch(&d.path().join("noise.json"));
         assert_eq!(record_beside(&run).unwrap(), d.path().join("noise.json"));
