@@ -31,21 +31,23 @@ if ! cargo fuzz --version >/dev/null 2>&1; then
 fi
 
 targets=(noise_record scenario certificate canonical_roundtrip)
-build=(--sanitizer none)
+triple=$(rustc -vV | sed -n 's/^host: //p')
 
 echo "fuzz.sh: building ${targets[*]}"
-cargo fuzz build "${build[@]}"
+cargo fuzz build --sanitizer none --target "$triple"
+bin="target/$triple/release"
 
 scratch=$(mktemp -d)
 trap 'rm -rf "$scratch"' EXIT
 
-# One target: its new inputs in the scratch folder (listed first, so libFuzzer writes there),
-# the committed corpus read only. A hang (-timeout, seconds per input) and a single allocation
-# or resident set above 2 GiB are failures too.
+# One target, run from the binary just built (`cargo fuzz run` would build again): its new
+# inputs in the scratch folder (listed first, so libFuzzer writes there), the committed corpus
+# read only. A hang (-timeout, seconds per input) and a single allocation or resident set
+# above 2 GiB are failures too.
 run_one() {
     local t=$1
     mkdir -p "$scratch/$t" "artifacts/$t"
-    cargo fuzz run "${build[@]}" "$t" "$scratch/$t" "corpus/$t" -- \
+    "$bin/$t" "$scratch/$t" "corpus/$t" \
         -max_total_time="$secs" -timeout=10 -rss_limit_mb=2048 -malloc_limit_mb=2048 \
         -dict="dict/$t.dict" -artifact_prefix="artifacts/$t/" -print_final_stats=1 \
         >"$scratch/$t.log" 2>&1
@@ -83,8 +85,8 @@ for t in "${targets[@]}"; do
         failed+=("$t")
         echo "fuzz.sh: $t: FAILED; the end of its log:" >&2
         tail -n 40 "$scratch/$t.log" >&2
-        grep -h 'Test unit written to\|artifact_prefix\|written to' "$scratch/$t.log" |
-            sed "s|^|fuzz.sh: $t: |; s|to artifacts/|to fuzz/artifacts/|" >&2 || true
+        grep -o 'Test unit written to [^ ]*' "$scratch/$t.log" |
+            sed "s|^Test unit written to |fuzz.sh: $t: the input that failed is $PWD/|" >&2 || true
         echo "fuzz.sh: reproduce with: cd fuzz && cargo fuzz run --sanitizer none $t <that file>" >&2
     fi
 done

@@ -2,8 +2,9 @@
 //! read back exactly.
 //!
 //! 1. Bytes that are JSON: canonical bytes, parsed again and canonicalised again, must be the
-//!    same bytes (RFC 8785 §3: the canonical form of a canonical form is itself); the
-//!    streamed SHA-256 must be the digest of those bytes.
+//!    same bytes (RFC 8785 §3: the canonical form of a canonical form is itself); the form
+//!    must mean what the input meant (same strings, names and structure; every number the
+//!    same double, RFC 8785 §3.2.2.3); the streamed SHA-256 must be the digest of those bytes.
 //! 2. Every input's first 8 bytes as an IEEE 754 double (little-endian): a finite x must be
 //!    written by `number_to_string` as text that parses back to x bit for bit (−0 aside,
 //!    written `0` by RFC 8785 §3.2.2.3), and a non-finite x must have no text.
@@ -33,6 +34,11 @@ fuzz_target!(|data: &[u8]| {
             String::from_utf8_lossy(&once),
             String::from_utf8_lossy(&twice)
         );
+        assert!(
+            same_meaning(&value, &back),
+            "the canonical form means something else:\n{}",
+            String::from_utf8_lossy(&once)
+        );
         assert_eq!(canonical_sha256_hex(&value).ok(), Some(sha256_hex(&once)));
     }
     if data.len() >= 8 {
@@ -59,3 +65,29 @@ fuzz_target!(|data: &[u8]| {
         }
     }
 });
+
+/// Equal as RFC 8785 reads JSON: numbers compared as doubles (so `1` and `1.0` agree, and −0
+/// equals 0), everything else exactly; member order does not matter (a map).
+fn same_meaning(a: &Value, b: &Value) -> bool {
+    match (a, b) {
+        (Value::Number(x), Value::Number(y)) => double(x) == double(y),
+        (Value::Array(x), Value::Array(y)) => {
+            x.len() == y.len() && x.iter().zip(y).all(|(u, v)| same_meaning(u, v))
+        }
+        (Value::Object(x), Value::Object(y)) => {
+            x.len() == y.len()
+                && x.iter()
+                    .all(|(k, u)| y.get(k).is_some_and(|v| same_meaning(u, v)))
+        }
+        _ => a == b,
+    }
+}
+
+/// A JSON number as the nearest double, as RFC 8785 §3.2.2.3 reads it.
+fn double(n: &serde_json::Number) -> f64 {
+    match (n.as_u64(), n.as_i64()) {
+        (Some(u), _) => u as f64,
+        (None, Some(i)) => i as f64,
+        _ => n.as_f64().unwrap_or(f64::NAN),
+    }
+}
