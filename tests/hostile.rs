@@ -387,6 +387,23 @@ fn every_broken_noise_record_is_refused_by_certify_and_nothing_is_written() {
     }
 }
 
+/// A folder or a FIFO given as `simulate`'s scenario is refused before it is read (a FIFO
+/// used to block the read forever); nothing is written into the output folder's parent.
+#[test]
+fn a_folder_or_a_fifo_given_as_the_scenario_is_refused() {
+    let dir = scratch();
+    let folder = dir.path().join("folder.json");
+    std::fs::create_dir(&folder).unwrap();
+    let fifo = dir.path().join("pipe.json");
+    mkfifo(&fifo);
+    let out = dir.path().join("out");
+    for (path, what) in [(&folder, "it is a folder"), (&fifo, "it is a FIFO")] {
+        let name = path.file_name().unwrap().to_str().unwrap();
+        let want = ["cannot read", name, what, "give the path of a scenario"];
+        refused(dir.path(), &os(&[&"simulate", path, &"-o", &out]), 1, &want);
+    }
+}
+
 /// A UTF-8 byte-order mark before the record is allowed (RFC 8259 §8.1: a parser may ignore
 /// it): `budget` says exactly what it says for the same record without the mark.
 #[test]

@@ -97,10 +97,8 @@ impl Certificate {
 
     /// Reads a certificate file; problems of its outer structure are input errors.
     pub fn read(path: &Path) -> Result<Certificate> {
-        let bytes = std::fs::read(path).map_err(|source| Error::Read {
-            path: path.to_path_buf(),
-            source,
-        })?;
+        // A regular file only (a FIFO would block the read forever).
+        let bytes = crate::inputs::regular::read_regular(path, super::verify::CERTIFICATE)?;
         Certificate::from_bytes(&bytes).map_err(|problems| Error::Input {
             kind: InputKind::Certificate,
             file: path.to_path_buf(),

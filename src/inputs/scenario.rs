@@ -242,10 +242,11 @@ const TOP_KEYS: [&str; 18] = [
 
 /// Reads and checks a scenario file.
 pub fn read_scenario(path: &Path) -> crate::Result<Scenario> {
-    let bytes = std::fs::read(path).map_err(|source| Error::Read {
-        path: path.to_path_buf(),
-        source,
-    })?;
+    // A regular file only: a FIFO would block the read forever (tests/hostile.rs).
+    let bytes = crate::inputs::regular::read_regular(
+        path,
+        "a scenario (JSON, format quassay-scenario v1)",
+    )?;
     let fail = |problems| Error::Input {
         kind: InputKind::Scenario,
         file: path.to_path_buf(),
