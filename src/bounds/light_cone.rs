@@ -24,6 +24,15 @@
 //!   evaluated in the variable `x = τ/τ_ref` with `τ_ref ≤ t_max` chosen so that every
 //!   coefficient is at most `e^600`; where `τ_ref < t_max`, `u_i(τ_ref) ≥ e^300 > 1`, so the
 //!   crossing of 1 lies below `τ_ref` and later times need no series at all.
+//! * **Reuse.** The numbers of a support depend only on its region (bonds with `J̃`, sources
+//!   with `n_Y`, `K`, in the order the computation visits them), on `q` and on the times.
+//!   [`ExposureCache`] finds each region by a search costing time proportional to it, and
+//!   reuses the values of an earlier support whose region is equal number for number (a
+//!   translate on a uniform lattice, with no boundary or other coupling inside the region):
+//!   the same operations on the same numbers, so the same bits. On a periodic lattice the
+//!   sites at the seam list their neighbours in another order, so regions containing the seam
+//!   are computed afresh. Within one region, sources with equal distance, `n_Y` and walk sums
+//!   share one series.
 //! * **Crossing.** `T_i(t) ≤ ∫_0^{min(t, τ_c)} u_i + (t − τ_c)_+` for *every* `τ_c ≥ 0`
 //!   (equality at the crossing `τ*`), so the crossing found by Newton's method on `ln u_i(e^y)`
 //!   (convex in `y`, iterates approach `τ*` from above) needs no error analysis.
@@ -36,6 +45,9 @@
 //! `exp(64·2^{-52}·(K+3)² ln(K+3) + 10^{-12})` to cover it, mantissas that would fall below
 //! `2^{-1000}` are rounded up to it, and `(K+2)·10^{-300}·t` is added for terms lost to
 //! underflow. The result is capped at `t`.
+
+use std::collections::HashMap;
+use std::sync::Arc;
 
 use rayon::prelude::*;
 
@@ -179,6 +191,11 @@ impl<'a> WalkGraph<'a> {
         })
     }
 
+    /// The lattice.
+    pub fn lattice(&self) -> &'a Lattice {
+        self.lattice
+    }
+
     /// The norm bounds `J̃_e`, in bond order.
     pub fn bond_bounds(&self) -> &[f64] {
         &self.jtilde
@@ -274,15 +291,100 @@ pub struct RegionSource {
     pub bonds_meeting: u32,
 }
 
-impl Walks {
-    /// Computes the walk sums from support `x` for every instance whose support lies within the
-    /// order needed for times up to `t_max`.
-    pub fn new(
+/// Which instances act on each site (compressed rows), so that the sources of a support's
+/// region are found in time proportional to the region, not to the number of instances.
+#[derive(Debug, Clone)]
+pub struct InstanceIndex<'a> {
+    instances: &'a [Instance],
+    /// The instances acting on site `s` are `items[offsets[s]..offsets[s + 1]]` (increasing).
+    offsets: Vec<usize>,
+    items: Vec<usize>,
+}
+
+impl<'a> InstanceIndex<'a> {
+    /// Indexes `instances` by the sites of their supports (sites `≥ n_sites` are ignored).
+    pub fn new(instances: &'a [Instance], n_sites: usize) -> InstanceIndex<'a> {
+        let mut offsets = vec![0usize; n_sites + 1];
+        for inst in instances {
+            for &s in &inst.support {
+                if s < n_sites {
+                    offsets[s + 1] += 1;
+                }
+            }
+        }
+        for s in 0..n_sites {
+            offsets[s + 1] += offsets[s];
+        }
+        let mut fill = offsets.clone();
+        let mut items = vec![0usize; offsets[n_sites]];
+        for (k, inst) in instances.iter().enumerate() {
+            for &s in &inst.support {
+                if s < n_sites {
+                    items[fill[s]] = k;
+                    fill[s] += 1;
+                }
+            }
+        }
+        InstanceIndex {
+            instances,
+            offsets,
+            items,
+        }
+    }
+
+    /// The indexed instances.
+    pub fn instances(&self) -> &'a [Instance] {
+        self.instances
+    }
+
+    fn at(&self, s: usize) -> &[usize] {
+        match (self.offsets.get(s), self.offsets.get(s + 1)) {
+            (Some(&a), Some(&b)) => &self.items[a..b],
+            _ => &[],
+        }
+    }
+}
+
+/// Per-thread work arrays of the region search (distance per site, local index per bond), kept
+/// at `u32::MAX` between uses so that a search costs time proportional to its region.
+#[derive(Default)]
+struct Scratch {
+    dist: Vec<u32>,
+    local: Vec<u32>,
+}
+
+thread_local! {
+    static SCRATCH: std::cell::RefCell<Scratch> = std::cell::RefCell::new(Scratch::default());
+}
+
+/// Everything the walk sums and the exposures of one support depend on, besides the graph's
+/// growth `q` and the times: the region's bonds (distance from `X`, `J̃`, which region bonds
+/// meet each), its sources (distance, `n_Y`, the region bonds meeting each) and the order `K`,
+/// all in the order the computation visits them (breadth-first discovery order, which follows
+/// the lattice's neighbour lists). Two supports with equal [`Region::same_shape`] get the same
+/// floating-point operations on the same values, so their exposures are equal to the bit,
+/// wherever they sit on the lattice; only the instance indices of the sources differ.
+#[derive(Debug, Clone)]
+pub(crate) struct Region {
+    order: usize,
+    bond_dist: Vec<u32>,
+    jt: Vec<f64>,
+    meet_off: Vec<u32>,
+    meet: Vec<u32>,
+    sources: Vec<RegionSource>,
+    src_off: Vec<u32>,
+    src_bonds: Vec<u32>,
+}
+
+impl Region {
+    /// The bonds within distance `K − 1` and the sources within distance `K` of `x`, with `K`
+    /// the order needed for times up to `t_max` ([`choose_order`]).
+    fn build(
         graph: &WalkGraph,
+        index: &InstanceIndex,
         x: &[usize],
-        instances: &[Instance],
         t_max: f64,
-    ) -> Result<Walks, Unavailable> {
+    ) -> Result<Region, Unavailable> {
         let lattice = graph.lattice;
         let n = lattice.n_sites();
         if x.is_empty() {
@@ -291,18 +393,40 @@ impl Walks {
         if let Some(&site) = x.iter().find(|&&s| s >= n) {
             return Err(Unavailable::SupportOutOfRange { site, n_sites: n });
         }
-        let q = graph.growth;
         let mut a1_max = 0.0f64;
         for &s in x {
             for &(_, e) in lattice.neighbours(s) {
                 a1_max = a1_max.max(graph.jtilde[e as usize]);
             }
         }
-        let order = choose_order(a1_max, q, t_max);
+        let order = choose_order(a1_max, graph.growth, t_max);
         let k_max = order as u32;
+        SCRATCH.with(|cell| {
+            let mut scratch = cell.borrow_mut();
+            let Scratch { dist, local } = &mut *scratch;
+            if dist.len() < n {
+                dist.resize(n, u32::MAX);
+            }
+            if local.len() < lattice.n_bonds() {
+                local.resize(lattice.n_bonds(), u32::MAX);
+            }
+            let region = Region::search(graph, index, x, k_max, dist, local);
+            Ok(region)
+        })
+    }
 
+    /// The search proper; leaves `dist` and `local` as it found them (all `u32::MAX`).
+    fn search(
+        graph: &WalkGraph,
+        index: &InstanceIndex,
+        x: &[usize],
+        k_max: u32,
+        dist: &mut [u32],
+        local: &mut [u32],
+    ) -> Region {
+        let lattice = graph.lattice;
+        let n = lattice.n_sites();
         // Bounded breadth-first search from X, recording the visiting order.
-        let mut dist = vec![u32::MAX; n];
         let mut visited: Vec<u32> = Vec::new();
         for &s in x {
             if dist[s] != 0 {
@@ -328,7 +452,6 @@ impl Walks {
 
         // Region bonds: distance ≤ K − 1, in order of distance (discovery order).
         const NONE: u32 = u32::MAX;
-        let mut local = vec![NONE; lattice.n_bonds()];
         let mut bonds: Vec<u32> = Vec::new();
         let mut bond_dist: Vec<u32> = Vec::new();
         for &s in &visited {
@@ -347,7 +470,7 @@ impl Walks {
         // For each region bond, the region bonds meeting it (itself once).
         let mut meet_off = Vec::with_capacity(bonds.len() + 1);
         let mut meet: Vec<u32> = Vec::new();
-        meet_off.push(0usize);
+        meet_off.push(0u32);
         for &e in &bonds {
             let [a, b] = lattice.bonds()[e as usize];
             for &(_, f) in lattice.neighbours(a as usize) {
@@ -360,32 +483,41 @@ impl Walks {
                     meet.push(local[f as usize]);
                 }
             }
-            meet_off.push(meet.len());
+            meet_off.push(meet.len() as u32);
         }
+        let jt: Vec<f64> = bonds.iter().map(|&e| graph.jtilde[e as usize]).collect();
 
-        // Region sources and the region bonds meeting each.
-        let mut region = Vec::new();
-        for (k, inst) in instances.iter().enumerate() {
-            let r = inst
-                .support
-                .iter()
-                .filter(|&&s| s < n)
-                .map(|&s| dist[s])
-                .min()
-                .unwrap_or(u32::MAX);
-            if r <= k_max {
-                region.push(RegionSource {
+        // Region sources: the instances acting on a visited site (distance ≤ K).
+        let mut candidates: Vec<usize> = visited
+            .iter()
+            .flat_map(|&s| index.at(s as usize).iter().copied())
+            .collect();
+        candidates.sort_unstable();
+        candidates.dedup();
+        let instances = index.instances;
+        let mut sources: Vec<RegionSource> = candidates
+            .into_iter()
+            .map(|k| {
+                let inst = &instances[k];
+                let r = inst
+                    .support
+                    .iter()
+                    .filter(|&&s| s < n)
+                    .map(|&s| dist[s])
+                    .min()
+                    .unwrap_or(u32::MAX);
+                RegionSource {
                     instance: k,
                     distance: r,
                     bonds_meeting: graph.bonds_meeting(&inst.support) as u32,
-                });
-            }
-        }
-        region.sort_by_key(|s| (s.distance, s.instance));
-        let mut src_off = vec![0usize];
+                }
+            })
+            .collect();
+        sources.sort_by_key(|s| (s.distance, s.instance));
+        // The region bonds meeting each source (none needed for a source meeting X).
+        let mut src_off = vec![0u32];
         let mut src_bonds: Vec<u32> = Vec::new();
-        let mut offsets = vec![0usize];
-        for s in &region {
+        for s in &sources {
             if s.distance > 0 {
                 let mut list: Vec<u32> = instances[s.instance]
                     .support
@@ -397,27 +529,119 @@ impl Walks {
                 list.sort_unstable();
                 list.dedup();
                 src_bonds.extend(list);
-                let last = offsets[offsets.len() - 1];
+            }
+            src_off.push(src_bonds.len() as u32);
+        }
+        // Restore the work arrays.
+        for &s in &visited {
+            dist[s as usize] = u32::MAX;
+        }
+        for &e in &bonds {
+            local[e as usize] = NONE;
+        }
+        Region {
+            order: k_max as usize,
+            bond_dist,
+            jt,
+            meet_off,
+            meet,
+            sources,
+            src_off,
+            src_bonds,
+        }
+    }
+
+    /// Whether `other` has the same shape: every number the walk sums and exposures read is
+    /// equal (`J̃` to the bit), position by position; the instance indices may differ.
+    fn same_shape(&self, other: &Region) -> bool {
+        self.order == other.order
+            && self.bond_dist == other.bond_dist
+            && self.jt.len() == other.jt.len()
+            && self
+                .jt
+                .iter()
+                .zip(&other.jt)
+                .all(|(a, b)| a.to_bits() == b.to_bits())
+            && self.meet_off == other.meet_off
+            && self.meet == other.meet
+            && self.src_off == other.src_off
+            && self.src_bonds == other.src_bonds
+            && self.sources.len() == other.sources.len()
+            && self
+                .sources
+                .iter()
+                .zip(&other.sources)
+                .all(|(a, b)| a.distance == b.distance && a.bonds_meeting == b.bonds_meeting)
+    }
+
+    /// A hash of the shape (the numbers [`Region::same_shape`] compares), to find candidates.
+    fn shape_hash(&self) -> u64 {
+        use std::hash::{Hash, Hasher};
+        let mut h = std::collections::hash_map::DefaultHasher::new();
+        self.order.hash(&mut h);
+        self.bond_dist.hash(&mut h);
+        for v in &self.jt {
+            v.to_bits().hash(&mut h);
+        }
+        self.meet_off.hash(&mut h);
+        self.meet.hash(&mut h);
+        self.src_off.hash(&mut h);
+        self.src_bonds.hash(&mut h);
+        for s in &self.sources {
+            (s.distance, s.bonds_meeting).hash(&mut h);
+        }
+        h.finish()
+    }
+
+    /// The number of stored numbers (for memory budgets).
+    fn size(&self) -> usize {
+        self.bond_dist.len() * 3
+            + self.meet.len()
+            + self.sources.len() * 3
+            + self.src_bonds.len()
+            + self.meet_off.len()
+            + self.src_off.len()
+    }
+}
+
+impl Walks {
+    /// Computes the walk sums from support `x` for every instance whose support lies within the
+    /// order needed for times up to `t_max`.
+    pub fn new(
+        graph: &WalkGraph,
+        x: &[usize],
+        instances: &[Instance],
+        t_max: f64,
+    ) -> Result<Walks, Unavailable> {
+        let index = InstanceIndex::new(instances, graph.lattice.n_sites());
+        let region = Region::build(graph, &index, x, t_max)?;
+        Ok(Walks::from_region(graph.growth, &region))
+    }
+
+    /// The walk sums of a region (the scaled recursion). Reads only the region and `q`.
+    fn from_region(q: f64, reg: &Region) -> Walks {
+        let order = reg.order;
+        let k_max = order as u32;
+        let region = &reg.sources;
+        let mut offsets = vec![0usize];
+        for s in region {
+            let last = offsets[offsets.len() - 1];
+            if s.distance > 0 {
                 offsets.push(last + (k_max - s.distance + 1) as usize);
             } else {
-                let last = offsets[offsets.len() - 1];
                 offsets.push(last);
             }
-            src_off.push(src_bonds.len());
         }
         let mut w = vec![0.0f64; offsets[offsets.len() - 1]];
+        let (bond_dist, meet_off, meet) = (&reg.bond_dist, &reg.meet_off, &reg.meet);
+        let (src_off, src_bonds) = (&reg.src_off, &reg.src_bonds);
 
         // The scaled recursion.
-        let mut a: Vec<f64> = bonds
+        let mut a: Vec<f64> = reg
+            .jt
             .iter()
-            .zip(&bond_dist)
-            .map(|(&e, &d)| {
-                if d == 0 {
-                    graph.jtilde[e as usize]
-                } else {
-                    0.0
-                }
-            })
+            .zip(bond_dist)
+            .map(|(&j, &d)| if d == 0 { j } else { 0.0 })
             .collect();
         let mut next = vec![0.0f64; a.len()];
         let mut exponent = normalise(&mut a, 0);
@@ -425,13 +649,13 @@ impl Walks {
         // Number of region bonds with distance ≤ d is bonds_upto(d).
         let bonds_upto = |d: u32| bond_dist.partition_point(|&x| x <= d);
         let first_far = |k: u32| region.partition_point(|s| s.distance <= k);
+        let lo = region.partition_point(|s| s.distance == 0);
         for k in 1..=k_max {
             exponents.push(exponent);
             // W_k for sources with 1 ≤ r ≤ k.
-            let lo = region.partition_point(|s| s.distance == 0);
             for j in lo..first_far(k) {
                 let mut sum = 0.0;
-                for &e in &src_bonds[src_off[j]..src_off[j + 1]] {
+                for &e in &src_bonds[src_off[j] as usize..src_off[j + 1] as usize] {
                     sum += a[e as usize];
                 }
                 w[offsets[j] + (k - region[j].distance) as usize] = sum;
@@ -441,17 +665,17 @@ impl Walks {
             }
             // a(k+1) is nonzero only on bonds within distance k.
             let live = bonds_upto(k);
-            let jt = &graph.jtilde;
+            let jt = &reg.jt;
             next[..live]
                 .par_iter_mut()
                 .enumerate()
                 .with_min_len(1024)
                 .for_each(|(f, out)| {
                     let mut sum = 0.0;
-                    for &e in &meet[meet_off[f]..meet_off[f + 1]] {
+                    for &e in &meet[meet_off[f] as usize..meet_off[f + 1] as usize] {
                         sum += a[e as usize];
                     }
-                    *out = jt[bonds[f] as usize] * sum;
+                    *out = jt[f] * sum;
                 });
             std::mem::swap(&mut a, &mut next);
             exponent = normalise(&mut a[..live], exponent);
@@ -471,17 +695,17 @@ impl Walks {
         // add ≤ 10(K+2)ε relative. The margin covers all of it with room to spare.
         let kf = order as f64 + 3.0;
         let ln_margin = 64.0 * f64::EPSILON * kf * kf * kf.ln() + 1e-12;
-        Ok(Walks {
+        Walks {
             order,
             growth: q,
             ln_a_max,
             ln_fact,
             ln_margin,
             exponents,
-            region,
+            region: region.clone(),
             offsets,
             w,
-        })
+        }
     }
 
     /// The order `K`.
@@ -542,7 +766,10 @@ impl Walks {
                 r,
                 tau_ref: t_max,
                 gamma: Vec::new(),
+                gamma_d: Vec::new(),
+                gamma_integral: Vec::new(),
                 crossing: Some(0.0),
+                integral_at_crossing: 0.0,
                 margin,
                 slack,
             };
@@ -583,11 +810,25 @@ impl Walks {
         }
         let gamma = ell;
         let tau_ref = t_max * s.exp();
+        let gamma_integral = gamma
+            .iter()
+            .enumerate()
+            .map(|(m, &g)| g / (r + m + 1) as f64)
+            .collect();
+        // The derivative's coefficients, formed once (the products poly would form each time).
+        let gamma_d = gamma
+            .iter()
+            .enumerate()
+            .map(|(m, &g)| (r + m) as f64 * g)
+            .collect();
         let mut series = Series {
             r,
             tau_ref,
             gamma,
+            gamma_d,
+            gamma_integral,
             crossing: None,
+            integral_at_crossing: 0.0,
             margin,
             slack,
         };
@@ -604,7 +845,9 @@ impl Walks {
                 }
                 y -= h * s0 / s1;
             }
-            series.crossing = Some(tau_ref * y.exp());
+            let tc = tau_ref * y.exp();
+            series.crossing = Some(tc);
+            series.integral_at_crossing = series.integral_truncated(tc);
         }
         series
     }
@@ -645,9 +888,16 @@ pub struct Series {
     tau_ref: f64,
     /// `γ_m = W_{r+m} (2τ_ref)^{r+m}/(r+m)!`, each at most `e^600`.
     gamma: Vec<f64>,
+    /// `γ_m / (r + m + 1)`, the coefficients of the integral (divided once, not per time:
+    /// the same numbers, so the same bits).
+    gamma_integral: Vec<f64>,
+    /// `(r+m)·γ_m`.
+    gamma_d: Vec<f64>,
     /// A time `τ_c` with `u(τ_c) ≥ 1` (`Some(0)` for a source meeting X); `None`: `u < 1` on
     /// `[0, t_max]`.
     crossing: Option<f64>,
+    /// `∫_0^{τ_c} u` truncated, computed once (0 without a crossing).
+    integral_at_crossing: f64,
     margin: f64,
     slack: f64,
 }
@@ -657,9 +907,9 @@ impl Series {
     fn poly(&self, x: f64) -> (f64, f64) {
         let mut p0 = 0.0;
         let mut p1 = 0.0;
-        for (m, &g) in self.gamma.iter().enumerate().rev() {
+        for (&g, &gd) in self.gamma.iter().zip(&self.gamma_d).rev() {
             p0 = p0 * x + g;
-            p1 = p1 * x + (self.r + m) as f64 * g;
+            p1 = p1 * x + gd;
         }
         (times_power(p0, x, self.r), times_power(p1, x, self.r))
     }
@@ -671,8 +921,8 @@ impl Series {
         }
         let x = tau / self.tau_ref;
         let mut p = 0.0;
-        for (m, &g) in self.gamma.iter().enumerate().rev() {
-            p = p * x + g / (self.r + m + 1) as f64;
+        for &g in self.gamma_integral.iter().rev() {
+            p = p * x + g;
         }
         tau * times_power(p, x, self.r) * self.margin + self.slack * tau
     }
@@ -698,10 +948,86 @@ impl Series {
             return t;
         }
         match self.crossing {
-            Some(tc) if t > tc => self.integral_truncated(tc) + (t - tc),
+            Some(tc) if t > tc => self.integral_at_crossing + (t - tc),
             _ => self.integral_truncated(t),
         }
     }
+}
+
+/// The numbers of one region shape: `T` per source position and time, `C(t)` per time, `K`.
+#[derive(Debug)]
+struct Values {
+    /// `T` of the region sources, time-major: `values[k·R + j]`.
+    values: Vec<f64>,
+    /// `C(t)` per time.
+    tail: Vec<f64>,
+    order: usize,
+}
+
+impl Values {
+    /// `T_j(t)` for every source position `j` of the walks' region and every time (parallel
+    /// over sources; each value is computed on its own, so the thread count does not matter).
+    fn compute(walks: &Walks, times: &[f64]) -> Values {
+        let t_max = max_time(times);
+        let tail: Vec<f64> = times.iter().map(|&t| walks.tail_per_bond(t)).collect();
+        let n_t = times.len();
+        let n_r = walks.region.len();
+        // Sources with the same distance, `n_Y` and walk sums (bit for bit: several instances on
+        // one support, or mirror images that came out equal) have the same `T`: computed once.
+        let mut first: HashMap<(u32, u32, Vec<u64>), usize> = HashMap::new();
+        let mut rep = Vec::with_capacity(n_r);
+        let mut reps = Vec::new();
+        for j in 0..n_r {
+            let s = &walks.region[j];
+            let w: Vec<u64> = walks.w[walks.offsets[j]..walks.offsets[j + 1]]
+                .iter()
+                .map(|v| v.to_bits())
+                .collect();
+            let next = reps.len();
+            let i = *first
+                .entry((s.distance, s.bonds_meeting, w))
+                .or_insert(next);
+            if i == next {
+                reps.push(j);
+            }
+            rep.push(i);
+        }
+        let mut distinct = vec![0.0f64; reps.len() * n_t];
+        if n_t > 0 {
+            distinct
+                .par_chunks_mut(n_t)
+                .zip(&reps)
+                .for_each(|(out, &j)| {
+                    let series = walks.series(j, t_max);
+                    let n_y = walks.region[j].bonds_meeting as f64;
+                    for ((o, &t), &c) in out.iter_mut().zip(times).zip(&tail) {
+                        *o = (series.exposure_truncated(t) + n_y * c).min(t);
+                    }
+                });
+        }
+        let by_source: Vec<f64> = rep
+            .iter()
+            .flat_map(|&i| distinct[i * n_t..(i + 1) * n_t].iter().copied())
+            .collect();
+        let mut values = vec![0.0f64; n_r * n_t];
+        values
+            .par_chunks_mut(n_r.max(1))
+            .enumerate()
+            .for_each(|(k, row)| {
+                for (j, v) in row.iter_mut().enumerate() {
+                    *v = by_source[j * n_t + k];
+                }
+            });
+        Values {
+            values,
+            tail,
+            order: walks.order,
+        }
+    }
+}
+
+fn max_time(times: &[f64]) -> f64 {
+    times.iter().fold(0.0f64, |m, &t| m.max(t))
 }
 
 /// The exposure times `T_i(t)` of every source to one observable support, at every time.
@@ -709,11 +1035,8 @@ impl Series {
 pub struct Exposure {
     times: Vec<f64>,
     region: Vec<RegionSource>,
-    /// `T` of the region sources, time-major: `values[k·R + j]`.
-    values: Vec<f64>,
-    /// `C(t)` per time.
-    tail: Vec<f64>,
-    order: usize,
+    /// Shared by every support of the same region shape ([`ExposureCache`]).
+    values: Arc<Values>,
 }
 
 impl Exposure {
@@ -725,39 +1048,12 @@ impl Exposure {
         instances: &[Instance],
         times: &[f64],
     ) -> Result<Exposure, Unavailable> {
-        let t_max = times.iter().fold(0.0f64, |m, &t| m.max(t));
-        let walks = Walks::new(graph, x, instances, t_max)?;
-        let tail: Vec<f64> = times.iter().map(|&t| walks.tail_per_bond(t)).collect();
-        let n_t = times.len();
-        let n_r = walks.region.len();
-        let mut by_source = vec![0.0f64; n_r * n_t];
-        if n_t > 0 {
-            by_source
-                .par_chunks_mut(n_t)
-                .enumerate()
-                .for_each(|(j, out)| {
-                    let series = walks.series(j, t_max);
-                    let n_y = walks.region[j].bonds_meeting as f64;
-                    for ((o, &t), &c) in out.iter_mut().zip(times).zip(&tail) {
-                        *o = (series.exposure_truncated(t) + n_y * c).min(t);
-                    }
-                });
-        }
-        let mut values = vec![0.0f64; n_r * n_t];
-        values
-            .par_chunks_mut(n_r.max(1))
-            .enumerate()
-            .for_each(|(k, row)| {
-                for (j, v) in row.iter_mut().enumerate() {
-                    *v = by_source[j * n_t + k];
-                }
-            });
+        let walks = Walks::new(graph, x, instances, max_time(times))?;
+        let values = Values::compute(&walks, times);
         Ok(Exposure {
             times: times.to_vec(),
             region: walks.region,
-            values,
-            tail,
-            order: walks.order,
+            values: Arc::new(values),
         })
     }
 
@@ -768,7 +1064,7 @@ impl Exposure {
 
     /// The order `K` of the walk sums.
     pub fn order(&self) -> usize {
-        self.order
+        self.values.order
     }
 
     /// The region sources, sorted by (distance, instance).
@@ -779,17 +1075,207 @@ impl Exposure {
     /// `T` of the region sources at time index `k`, in region order.
     pub fn at(&self, k: usize) -> &[f64] {
         let n = self.region.len();
-        &self.values[k * n..(k + 1) * n]
+        &self.values.values[k * n..(k + 1) * n]
     }
 
     /// An upper bound on `T_i(t_k)` for a source outside the region meeting `n_y` bonds.
     pub fn outside(&self, k: usize, n_y: usize) -> f64 {
-        (n_y as f64 * self.tail[k]).min(self.times[k])
+        (n_y as f64 * self.values.tail[k]).min(self.times[k])
     }
 
     /// `C(t_k)` (see [`Walks::tail_per_bond`]).
     pub fn tail_per_bond(&self, k: usize) -> f64 {
-        self.tail[k]
+        self.values.tail[k]
+    }
+
+    /// Whether `self` and `other` share one computation (a support reused the exposure of a
+    /// translate with the same region shape).
+    pub fn shares_values_with(&self, other: &Exposure) -> bool {
+        Arc::ptr_eq(&self.values, &other.values)
+    }
+}
+
+/// Exposures of many supports of one run, computed once per *region shape*.
+///
+/// The exposure of support `X` is a function of its region (bonds, `J̃`, sources with
+/// `n_Y`, the order `K`, in the order the computation visits them), of the growth `q` and of
+/// the times; nothing else is read. The region is found by a bounded search costing time
+/// proportional to it, and when it equals, number for number (`J̃` to the bit, no boundary
+/// or different coupling inside it), the region of a support already computed (a translate on
+/// a uniform lattice, or the same support again), the computed values are reused: they are
+/// exactly what a fresh computation would give, since it would perform the same operations on
+/// the same numbers. Otherwise they are computed afresh. Which supports came first changes
+/// only what is reused, never a value.
+///
+/// Memory: the kept shapes and values are dropped when they pass a budget (a number of stored
+/// numbers); a dropped shape is recomputed if it comes again, with the same bits.
+#[derive(Debug)]
+pub struct ExposureCache {
+    budget: usize,
+    /// `q` and the times (bits) the kept values belong to.
+    key: Option<(u64, Vec<u64>)>,
+    lookup: HashMap<u64, Vec<usize>>,
+    shapes: Vec<(Region, Arc<Values>)>,
+    held: usize,
+    computed: usize,
+    reused: usize,
+}
+
+/// Where the values of one support of a batch come from.
+enum Source {
+    Kept(Arc<Values>),
+    New(usize),
+}
+
+impl ExposureCache {
+    /// An empty cache keeping at most about `budget` numbers (8 bytes each).
+    pub fn new(budget: usize) -> ExposureCache {
+        ExposureCache {
+            budget,
+            key: None,
+            lookup: HashMap::new(),
+            shapes: Vec::new(),
+            held: 0,
+            computed: 0,
+            reused: 0,
+        }
+    }
+
+    /// `(computed, reused)`: how many supports were computed afresh and how many reused the
+    /// values of an equal region shape, since the cache was made.
+    pub fn counts(&self) -> (usize, usize) {
+        (self.computed, self.reused)
+    }
+
+    fn clear(&mut self) {
+        self.lookup.clear();
+        self.shapes.clear();
+        self.held = 0;
+    }
+
+    /// The exposure of one support (see [`ExposureCache::exposures`]).
+    pub fn exposure(
+        &mut self,
+        graph: &WalkGraph,
+        index: &InstanceIndex,
+        times: &[f64],
+        x: &[usize],
+    ) -> Result<Exposure, Unavailable> {
+        let mut out = self.exposures(graph, index, times, &[x]);
+        out.pop().unwrap_or(Err(Unavailable::GlobalObservable))
+    }
+
+    /// The exposures of `supports` at `times` (in the order given), equal to the bit to
+    /// [`Exposure::new`] of each, for the instances of `index`. The region searches run in
+    /// parallel, the shapes are matched in the order given, and the new shapes are computed
+    /// in parallel: the result does not depend on the thread count.
+    pub fn exposures(
+        &mut self,
+        graph: &WalkGraph,
+        index: &InstanceIndex,
+        times: &[f64],
+        supports: &[&[usize]],
+    ) -> Vec<Result<Exposure, Unavailable>> {
+        let key = (
+            graph.growth.to_bits(),
+            times.iter().map(|t| t.to_bits()).collect::<Vec<u64>>(),
+        );
+        if self.key.as_ref() != Some(&key) {
+            self.clear();
+            self.key = Some(key);
+        }
+        let t_max = max_time(times);
+        let regions: Vec<Result<(Region, u64), Unavailable>> = supports
+            .par_iter()
+            .with_min_len(8)
+            .map(|x| {
+                Region::build(graph, index, x, t_max).map(|r| {
+                    let h = r.shape_hash();
+                    (r, h)
+                })
+            })
+            .collect();
+        // Match in the order given: kept shapes first, then shapes new in this batch.
+        let mut fresh: HashMap<u64, Vec<usize>> = HashMap::new();
+        let mut new_shapes: Vec<usize> = Vec::new();
+        let mut from: Vec<Option<Source>> = Vec::with_capacity(regions.len());
+        for (a, r) in regions.iter().enumerate() {
+            let Ok((region, h)) = r else {
+                from.push(None);
+                continue;
+            };
+            let kept = self.lookup.get(h).and_then(|c| {
+                c.iter()
+                    .copied()
+                    .find(|&i| self.shapes[i].0.same_shape(region))
+            });
+            if let Some(i) = kept {
+                from.push(Some(Source::Kept(self.shapes[i].1.clone())));
+                self.reused += 1;
+                continue;
+            }
+            let list = fresh.entry(*h).or_default();
+            let same = list.iter().copied().find(|&p| {
+                let b = new_shapes[p];
+                matches!(&regions[b], Ok((other, _)) if other.same_shape(region))
+            });
+            match same {
+                Some(p) => {
+                    from.push(Some(Source::New(p)));
+                    self.reused += 1;
+                }
+                None => {
+                    list.push(new_shapes.len());
+                    from.push(Some(Source::New(new_shapes.len())));
+                    new_shapes.push(a);
+                    self.computed += 1;
+                }
+            }
+        }
+        let q = graph.growth;
+        let computed: Vec<Arc<Values>> = new_shapes
+            .par_iter()
+            .map(|&a| match &regions[a] {
+                Ok((region, _)) => Arc::new(Values::compute(&Walks::from_region(q, region), times)),
+                Err(_) => Arc::new(Values {
+                    values: Vec::new(),
+                    tail: Vec::new(),
+                    order: 0,
+                }),
+            })
+            .collect();
+        // Keep the new shapes for later batches, within the budget.
+        for (p, &a) in new_shapes.iter().enumerate() {
+            if let Ok((region, h)) = &regions[a] {
+                let size = region.size() + computed[p].values.len() + computed[p].tail.len();
+                if self.held + size > self.budget {
+                    self.clear();
+                }
+                if size <= self.budget {
+                    self.held += size;
+                    self.lookup.entry(*h).or_default().push(self.shapes.len());
+                    self.shapes.push((region.clone(), computed[p].clone()));
+                }
+            }
+        }
+        regions
+            .into_iter()
+            .zip(from)
+            .map(|(r, f)| {
+                let (region, _) = r?;
+                let values = match f {
+                    Some(Source::Kept(v)) => v,
+                    Some(Source::New(p)) => computed[p].clone(),
+                    // Not reached: every support with a region has a source.
+                    None => return Err(Unavailable::GlobalObservable),
+                };
+                Ok(Exposure {
+                    times: times.to_vec(),
+                    region: region.sources,
+                    values,
+                })
+            })
+            .collect()
     }
 }
 
@@ -935,6 +1421,148 @@ mod tests {
         // The source 10 sites away is inside the light cone at t = 20: exposed almost all the time.
         let j = e.region().iter().position(|s| s.instance == 2010).unwrap();
         assert!(e.at(3)[j] > 19.0 && e.at(3)[j] <= 20.0);
+    }
+
+    /// One site instance per site and one bond instance per bond.
+    fn site_and_bond_instances(l: &Lattice) -> Vec<Instance> {
+        let mut inst = site_instances(l.n_sites());
+        for (e, &[a, b]) in l.bonds().iter().enumerate() {
+            inst.push(Instance {
+                source: 1,
+                support: vec![a.min(b) as usize, a.max(b) as usize],
+                bond: Some(e),
+                delta: 0.02,
+                family: Family::TwoPoint,
+                mean_offset: 0.0,
+                mean_offset_uncertainty: 0.0,
+            });
+        }
+        inst
+    }
+
+    /// Asserts that two exposures are equal to the last bit.
+    fn assert_same_bits(a: &Exposure, b: &Exposure, what: &str) {
+        assert_eq!(a.order(), b.order(), "{what}");
+        assert_eq!(a.region(), b.region(), "{what}");
+        for k in 0..a.times().len() {
+            assert_eq!(
+                a.tail_per_bond(k).to_bits(),
+                b.tail_per_bond(k).to_bits(),
+                "{what}"
+            );
+            let (x, y) = (a.at(k), b.at(k));
+            assert!(
+                x.iter().zip(y).all(|(u, v)| u.to_bits() == v.to_bits()),
+                "{what} k={k}"
+            );
+        }
+    }
+
+    /// Exact reuse across translates: on uniform open and periodic chains and an open square
+    /// lattice, every single-site and nearest-pair support taken from the cache (most of them
+    /// reusing a translate's values) equals a fresh computation to the last bit, and the
+    /// interior supports did reuse. With bond norms that differ from bond to bond no region
+    /// has the shape of another, and nothing is reused.
+    #[test]
+    fn translated_supports_reuse_exposures_bit_for_bit() {
+        let cases = [
+            (
+                Geometry::Chain,
+                vec![600],
+                Boundary::Open,
+                1.0,
+                vec![0.0, 0.5, 1.0, 2.0],
+            ),
+            (
+                Geometry::Chain,
+                vec![120],
+                Boundary::Periodic,
+                1.0,
+                vec![0.3, 1.0],
+            ),
+            (
+                Geometry::Square,
+                vec![61, 61],
+                Boundary::Open,
+                1.0,
+                vec![0.0, 0.01, 0.02],
+            ),
+            (
+                Geometry::Chain,
+                vec![120],
+                Boundary::Open,
+                -1.0,
+                vec![0.5, 1.0],
+            ),
+        ];
+        for (g, shape, b, norm, times) in cases {
+            let l = Lattice::regular(g, &shape, b).unwrap();
+            let inst = site_and_bond_instances(&l);
+            // norm < 0: bond norms 1 + e/1000, all different.
+            let norms: Vec<f64> = (0..l.n_bonds())
+                .map(|e| {
+                    if norm > 0.0 {
+                        norm
+                    } else {
+                        1.0 + e as f64 / 1000.0
+                    }
+                })
+                .collect();
+            let graph = WalkGraph::new(&l, &norms, 1, &inst).unwrap();
+            let index = InstanceIndex::new(&inst, l.n_sites());
+            let mut supports: Vec<Vec<usize>> = if g == Geometry::Square {
+                // The middle row (sites 30·61 + y) and its horizontal pairs.
+                let row: Vec<usize> = (0..61).map(|y| 30 * 61 + y).collect();
+                let mut v: Vec<Vec<usize>> = row.iter().map(|&s| vec![s]).collect();
+                v.extend(row.windows(2).map(|w| w.to_vec()));
+                v
+            } else {
+                let mut v: Vec<Vec<usize>> = (0..l.n_sites()).map(|s| vec![s]).collect();
+                v.extend(
+                    l.bonds()
+                        .iter()
+                        .map(|&[a, b]| vec![a.min(b) as usize, a.max(b) as usize]),
+                );
+                v
+            };
+            supports.iter_mut().for_each(|s| s.sort_unstable());
+            let refs: Vec<&[usize]> = supports.iter().map(|s| s.as_slice()).collect();
+            let mut cache = ExposureCache::new(1 << 22);
+            // Two batches, so that kept shapes and shapes new in a batch are both exercised.
+            let half = refs.len() / 2;
+            let mut got = cache.exposures(&graph, &index, &times, &refs[..half]);
+            got.extend(cache.exposures(&graph, &index, &times, &refs[half..]));
+            for (x, e) in supports.iter().zip(&got) {
+                let fresh = Exposure::new(&graph, x, &inst, &times).unwrap();
+                assert_same_bits(e.as_ref().unwrap(), &fresh, &format!("{g:?} {b:?} {x:?}"));
+            }
+            let (computed, reused) = cache.counts();
+            assert_eq!(computed + reused, supports.len());
+            if norm > 0.0 {
+                // On a periodic lattice the neighbour lists of the sites at the seam (where
+                // the wrapped bonds are numbered) are in another order, so the regions that
+                // contain the seam are computed afresh: fewer reuses there.
+                let wanted = match (g, b) {
+                    (_, Boundary::Periodic) => 10,
+                    (Geometry::Square, _) => 20,
+                    _ => supports.len() / 2,
+                };
+                assert!(
+                    reused > wanted,
+                    "{g:?} {b:?}: {computed} computed, {reused} reused"
+                );
+                // Interior single sites share one computation.
+                let mid = if g == Geometry::Square {
+                    30
+                } else {
+                    l.n_sites() / 2
+                };
+                let a = got[mid].as_ref().unwrap();
+                assert!(a.shares_values_with(got[mid + 1].as_ref().unwrap()));
+            } else {
+                assert_eq!(reused, 0, "{g:?}: different couplings must not be reused");
+            }
+        }
     }
 
     #[test]

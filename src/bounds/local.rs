@@ -18,7 +18,7 @@ use std::collections::HashMap;
 
 use super::family;
 use super::global::{self, FluctuationRoute, PointBounds, SourceData};
-use super::light_cone::{Exposure, Unavailable, WalkGraph};
+use super::light_cone::{Exposure, ExposureCache, InstanceIndex, Unavailable, WalkGraph};
 use crate::model::noise::{Instance, Redrawn};
 use crate::model::Terms;
 use rayon::prelude::*;
@@ -162,30 +162,24 @@ pub fn local_bounds(inp: &LocalInputs) -> Result<Vec<LocalTerms>, Unavailable> {
 pub fn local_bounds_with(inp: &LocalInputs, exposure: &Exposure) -> Vec<LocalTerms> {
     let c = compact(inp, exposure);
     let n = c.sources.len();
-    let mut sens = vec![0.0f64; n];
-    let mut out = Vec::with_capacity(inp.times.len());
     // ln φ per distinct source data, recomputed per time.
     let (class_of, reps) = classes(&c.sources);
-    for (k, &t) in inp.times.iter().enumerate() {
-        let tk = exposure.at(k);
-        for (e, &tt) in sens.iter_mut().zip(tk) {
-            *e = inp.s_o * tt;
-        }
-        for (j, &(ny, count)) in c.pseudo.iter().enumerate() {
-            let total = (ny * exposure.tail_per_bond(k)).min(count * t);
-            sens[c.n_region + j] = inp.s_o * total;
-        }
-        out.push(point_terms(
-            inp,
-            t,
-            &c,
-            &sens,
-            &class_of,
-            &reps,
-            BiasSet::Nearest,
-        ));
-    }
-    out
+    // Each time on its own (in parallel), collected in time order.
+    inp.times
+        .par_iter()
+        .enumerate()
+        .map(|(k, &t)| {
+            let mut sens = vec![0.0f64; n];
+            for (e, &tt) in sens.iter_mut().zip(exposure.at(k)) {
+                *e = inp.s_o * tt;
+            }
+            for (j, &(ny, count)) in c.pseudo.iter().enumerate() {
+                let total = (ny * exposure.tail_per_bond(k)).min(count * t);
+                sens[c.n_region + j] = inp.s_o * total;
+            }
+            point_terms(inp, t, &c, &sens, &class_of, &reps, BiasSet::Nearest)
+        })
+        .collect()
 }
 
 /// Every term at one time from the compact sources and their sensitivities; `prefix` names
@@ -292,13 +286,46 @@ pub struct TermByTerm {
 /// `s_O`: it bounds `|E f(g) − f(0)|` for the sources of `B` without using locality, so it is
 /// valid for any `B`; the remainder uses the sensitivity of each source left out.
 ///
-/// Work: one exposure per term (translated terms are not yet recognised as translates), so
-/// the cost is about `A ×` (lattice size + sources) plus `A ×` the region per term, and
-/// `instances × times` values of memory ([`TERMS_BUDGET`]).
+/// Work: one region search per term (time proportional to the term's region); the walk sums
+/// and exposures are computed once per region shape and reused, to the bit, by the terms whose
+/// region has the same shape (translates on a uniform lattice away from its boundary:
+/// [`ExposureCache`]). The sums over terms run in parallel over times, each value summed in
+/// term order. Memory: `instances × times` values ([`TERMS_BUDGET`]).
 pub fn term_bounds(
     inp: &LocalInputs,
     terms: &Terms,
     whole: &Exposure,
+) -> Result<TermByTerm, Unavailable> {
+    let index = InstanceIndex::new(inp.instances, inp.graph.lattice().n_sites());
+    let mut cache = ExposureCache::new(TERMS_BUDGET);
+    term_bounds_cached(inp, terms, whole, &index, &mut cache)
+}
+
+/// As [`term_bounds`], with the exposures of the terms taken from `cache` (kept across
+/// observables of a run: a magnetisation and a staggered magnetisation share every shape);
+/// `index` must index `inp.instances`.
+pub fn term_bounds_cached(
+    inp: &LocalInputs,
+    terms: &Terms,
+    whole: &Exposure,
+    index: &InstanceIndex,
+    cache: &mut ExposureCache,
+) -> Result<TermByTerm, Unavailable> {
+    term_bounds_from(inp, terms, whole, &mut |supports| {
+        cache.exposures(inp.graph, index, inp.times, supports)
+    })
+}
+
+/// A source of exposures for a batch of supports, in the order given.
+type ExposuresOf<'f> = dyn FnMut(&[&[usize]]) -> Vec<Result<Exposure, Unavailable>> + 'f;
+
+/// [`term_bounds`] with the terms' exposures from `exposures_of` (a batch of supports in, their
+/// exposures in the same order out).
+fn term_bounds_from(
+    inp: &LocalInputs,
+    terms: &Terms,
+    whole: &Exposure,
+    exposures_of: &mut ExposuresOf,
 ) -> Result<TermByTerm, Unavailable> {
     // One term on the whole support with |w| s_a ≥ s_O: the third form is `|w| s_a T_i ≥ s_O
     // T_i` for every source, so the statement is exactly the whole-support one.
@@ -337,25 +364,31 @@ pub fn term_bounds(
     let mut start = 0;
     while start < n_terms {
         let end = (start + TERMS_CHUNK).min(n_terms);
-        let exposures: Vec<Result<Exposure, Unavailable>> = (start..end)
-            .into_par_iter()
-            .map(|a| Exposure::new(inp.graph, &terms.supports[a], inp.instances, inp.times))
+        let supports: Vec<&[usize]> = terms.supports[start..end]
+            .iter()
+            .map(|s| s.as_slice())
             .collect();
-        for (a, e) in (start..end).zip(exposures) {
-            let e = e?;
+        let mut exposures = Vec::with_capacity(end - start);
+        for (a, e) in (start..end).zip(exposures_of(&supports)) {
             let [lo, hi] = terms.spectra[a];
             let c = terms.weights[a].abs() * (hi - lo);
-            if c == 0.0 {
-                continue;
-            }
-            for (k, tk) in tail.iter_mut().enumerate() {
-                *tk += c * e.tail_per_bond(k);
-                let row = &mut acc[k * n..(k + 1) * n];
-                for (src, &tt) in e.region().iter().zip(e.at(k)) {
-                    row[src.instance] += c * tt;
-                }
+            let e = e?;
+            if c != 0.0 {
+                exposures.push((c, e));
             }
         }
+        // Each time row on its own thread; within a row the terms are added in term order.
+        acc.par_chunks_mut(n.max(1))
+            .zip(tail.par_iter_mut())
+            .enumerate()
+            .for_each(|(k, (row, tk))| {
+                for (c, e) in &exposures {
+                    *tk += c * e.tail_per_bond(k);
+                    for (src, &tt) in e.region().iter().zip(e.at(k)) {
+                        row[src.instance] += c * tt;
+                    }
+                }
+            });
         start = end;
     }
     let n_y: Vec<f64> = inp
@@ -363,68 +396,66 @@ pub fn term_bounds(
         .iter()
         .map(|i| inp.graph.bonds_meeting(&i.support) as f64)
         .collect();
-    // The sources in instance order; reordered per time for the bias prefixes.
-    let mut whole_t = vec![0.0f64; n];
-    let mut sens = vec![0.0f64; n];
-    let mut order: Vec<usize> = (0..n).collect();
-    let mut points = Vec::with_capacity(n_t);
-    let mut forms = Vec::with_capacity(n_t);
-    for (k, &t) in inp.times.iter().enumerate() {
-        for (w, &ny) in whole_t.iter_mut().zip(&n_y) {
-            *w = whole.outside(k, ny as usize);
-        }
-        for (src, &tt) in whole.region().iter().zip(whole.at(k)) {
-            whole_t[src.instance] = tt;
-        }
-        let mut count = [0usize; 3];
-        for i in 0..n {
-            let g = inp.s_o * t;
-            let w = inp.s_o * whole_t[i];
-            let a = (acc[k * n + i] + n_y[i] * tail[k]).min(f64::MAX);
-            let (e, form) = if g <= w && g <= a {
-                (g, 0)
-            } else if w <= a {
-                (w, 1)
-            } else {
-                (a, 2)
+    // Per time (in parallel; each time on its own): the sources in instance order, then
+    // reordered for the bias prefixes. The order is a strict total order (ties by instance
+    // index), so it does not depend on where the sort starts.
+    let per_time: Vec<(LocalTerms, [usize; 3])> = inp
+        .times
+        .par_iter()
+        .enumerate()
+        .map(|(k, &t)| {
+            let mut whole_t: Vec<f64> = n_y
+                .iter()
+                .map(|&ny| whole.outside(k, ny as usize))
+                .collect();
+            for (src, &tt) in whole.region().iter().zip(whole.at(k)) {
+                whole_t[src.instance] = tt;
+            }
+            let mut sens = vec![0.0f64; n];
+            let mut count = [0usize; 3];
+            for i in 0..n {
+                let g = inp.s_o * t;
+                let w = inp.s_o * whole_t[i];
+                let a = (acc[k * n + i] + n_y[i] * tail[k]).min(f64::MAX);
+                let (e, form) = if g <= w && g <= a {
+                    (g, 0)
+                } else if w <= a {
+                    (w, 1)
+                } else {
+                    (a, 2)
+                };
+                sens[i] = e;
+                if inp.sources[i].delta > 0.0 {
+                    count[form] += 1;
+                }
+            }
+            let remainder = |i: usize| {
+                let s = &inp.sources[i];
+                if s.delta * sens[i] > 0.0 {
+                    s.delta * s.constants.sigma * sens[i]
+                } else {
+                    0.0
+                }
             };
-            sens[i] = e;
-            if inp.sources[i].delta > 0.0 {
-                count[form] += 1;
-            }
-        }
-        let remainder = |i: usize| {
-            let s = &inp.sources[i];
-            if s.delta * sens[i] > 0.0 {
-                s.delta * s.constants.sigma * sens[i]
-            } else {
-                0.0
-            }
-        };
-        order.sort_by(|&x, &y| {
-            remainder(y)
-                .partial_cmp(&remainder(x))
-                .unwrap_or(std::cmp::Ordering::Equal)
-                .then(x.cmp(&y))
-        });
-        let c = Compact {
-            sources: order.iter().map(|&i| inp.sources[i]).collect(),
-            pseudo: Vec::new(),
-            n_region: n,
-        };
-        let sorted: Vec<f64> = order.iter().map(|&i| sens[i]).collect();
-        let (class_of, reps) = classes(&c.sources);
-        points.push(point_terms(
-            inp,
-            t,
-            &c,
-            &sorted,
-            &class_of,
-            &reps,
-            BiasSet::Largest,
-        ));
-        forms.push(count);
-    }
+            let mut order: Vec<usize> = (0..n).collect();
+            order.sort_by(|&x, &y| {
+                remainder(y)
+                    .partial_cmp(&remainder(x))
+                    .unwrap_or(std::cmp::Ordering::Equal)
+                    .then(x.cmp(&y))
+            });
+            let c = Compact {
+                sources: order.iter().map(|&i| inp.sources[i]).collect(),
+                pseudo: Vec::new(),
+                n_region: n,
+            };
+            let sorted: Vec<f64> = order.iter().map(|&i| sens[i]).collect();
+            let (class_of, reps) = classes(&c.sources);
+            let point = point_terms(inp, t, &c, &sorted, &class_of, &reps, BiasSet::Largest);
+            (point, count)
+        })
+        .collect();
+    let (points, forms) = per_time.into_iter().unzip();
     Ok(TermByTerm {
         n_terms,
         points,
@@ -765,6 +796,80 @@ mod tests {
         let (st, sw) = (slope(&xs, &terms), slope(&xs, &whole));
         assert!((st + 0.5).abs() < 0.05, "term-by-term exponent {st}");
         assert!((sw - 0.5).abs() < 0.05, "whole-operator exponent {sw}");
+    }
+
+    /// The term-by-term statement with exposures reused across translated terms equals the
+    /// one with a fresh exposure per term, to the last bit (uniform open chain and square
+    /// lattice, staggered weights and nearest-pair terms), and does not depend on the number
+    /// of threads.
+    #[test]
+    fn reused_term_exposures_give_the_same_bits_as_fresh_ones() {
+        for (g, shape, times) in [
+            (Geometry::Chain, vec![400], vec![0.0, 0.5, 1.5]),
+            (Geometry::Square, vec![50, 50], vec![0.0, 0.01, 0.02]),
+        ] {
+            let l = Lattice::regular(g, &shape, Boundary::Open).unwrap();
+            let n = l.n_sites();
+            let inst = instances(&l, 0.05, 0.02);
+            let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
+            let graph = WalkGraph::new(&l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
+            let support: Vec<usize> = (0..n).collect();
+            let inp = LocalInputs {
+                graph: &graph,
+                support: &support,
+                s_o: 2.0,
+                instances: &inst,
+                sources: &sources,
+                times: &times,
+                redrawn: Redrawn::EveryRealization,
+                realizations: 10,
+                p: 1e-3,
+                p_single: 1e-3,
+            };
+            let whole = Exposure::new(&graph, &support, &inst, &times).unwrap();
+            // Every site of the chain; the middle row of the square lattice (kept short).
+            let row: Vec<usize> = if g == Geometry::Square {
+                (0..50).map(|y| 25 * 50 + y).collect()
+            } else {
+                (0..n).collect()
+            };
+            let mut supports: Vec<Vec<usize>> = row.iter().map(|&s| vec![s]).collect();
+            supports.extend(row.windows(2).map(|w| w.to_vec()));
+            let m = supports.len();
+            let terms = Terms {
+                supports,
+                weights: (0..m)
+                    .map(|a| if a % 2 == 0 { 1.0 } else { -0.5 } / n as f64)
+                    .collect(),
+                spectra: vec![[-1.0, 1.0]; m],
+            };
+            let reused = term_bounds(&inp, &terms, &whole).unwrap();
+            let fresh = term_bounds_from(&inp, &terms, &whole, &mut |batch| {
+                batch
+                    .iter()
+                    .map(|x| Exposure::new(&graph, x, &inst, &times))
+                    .collect()
+            })
+            .unwrap();
+            assert_eq!(format!("{reused:?}"), format!("{fresh:?}"), "{g:?}");
+            let one = rayon::ThreadPoolBuilder::new()
+                .num_threads(1)
+                .build()
+                .unwrap()
+                .install(|| term_bounds(&inp, &terms, &whole).unwrap());
+            assert_eq!(
+                format!("{reused:?}"),
+                format!("{one:?}"),
+                "{g:?} one thread"
+            );
+            // Reuse happened: far fewer shapes than terms.
+            let index = InstanceIndex::new(&inst, n);
+            let mut cache = ExposureCache::new(TERMS_BUDGET);
+            term_bounds_cached(&inp, &terms, &whole, &index, &mut cache).unwrap();
+            let (computed, again) = cache.counts();
+            let wanted = if g == Geometry::Square { 10 } else { m / 2 };
+            assert!(again > wanted, "{g:?}: {computed} computed, {again} reused");
+        }
     }
 
     /// A sum with one term, `w = 1` and the observable's spectrum, on the observable's

@@ -3,8 +3,10 @@
 //!
 //! Per observable and time the point reports one *statement*: the global one (§3), or the
 //! light-cone one (§5) when it is smaller ([`super::local::combine`]). The walk graph is built
-//! once per run; the exposure times of a support are computed once and reused by every
-//! observable with the same support (within a memory budget, see [`EXPOSURE_BUDGET`]).
+//! once per run; the exposure times are computed once per region shape and reused, to the bit,
+//! by every support with the same shape: the same support again, or a translate on a uniform
+//! lattice away from its boundary, whether it is an observable's support or a term of a sum
+//! observable ([`ExposureCache`], within a memory budget, see [`EXPOSURE_BUDGET`]).
 //! Observables that are sums of local terms get a third candidate, the term-by-term statement
 //! ([`super::local::term_bounds`]): per source the smallest of the global, whole-support and
 //! term-by-term sensitivities; the point reports the smallest of the three statements.
@@ -18,15 +20,17 @@ use super::global::{
     evaluate_point, shot_hoeffding, shot_hoeffding_from_sum, shot_normal_from_sum, PointBounds,
     PointInputs, ShotData, SourceData,
 };
-use super::light_cone::{Exposure, Unavailable, WalkGraph};
+use super::light_cone::{ExposureCache, InstanceIndex, Unavailable, WalkGraph};
 use super::local::{
-    combine_all, local_bounds_with, term_bounds, LocalInputs, LocalTerms, Statement, TermByTerm,
+    combine_all, local_bounds_with, term_bounds_cached, LocalInputs, LocalTerms, Statement,
+    TermByTerm,
 };
 use crate::model::{Hamiltonian, Lattice, NoiseModel, Observable, Run, Shots, Terms, TimeUnit};
 
-/// Largest number of exposure values (region sources × times, summed over the supports kept)
-/// held for reuse: 2^24 values, 128 MiB. Past it the kept exposures are dropped before a new
-/// one is stored; a dropped one is recomputed if needed, with the same bits.
+/// Largest number of numbers (exposure values, region sources × times, plus the region
+/// shapes, summed over the shapes kept) held for reuse: 2^24, 128 MiB. Past it the kept
+/// shapes are dropped before a new one is stored; a dropped one is recomputed if needed, with
+/// the same bits.
 pub const EXPOSURE_BUDGET: usize = 1 << 24;
 
 /// What the light-cone bounds need of a run besides the noise model.
@@ -259,9 +263,10 @@ pub struct RunEvaluator<'a> {
     noise_terms: Vec<(u64, Vec<PointBounds>)>,
     /// The run's walk graph, or why there is none (then every observable is global).
     graph: Result<WalkGraph<'a>, Unavailable>,
-    /// Exposures kept for reuse, by support, and the number of values they hold.
-    exposures: Vec<(Vec<usize>, Result<Exposure, Unavailable>)>,
-    exposure_values: usize,
+    /// The instances by site (for the region searches).
+    index: InstanceIndex<'a>,
+    /// Exposures kept for reuse, by region shape.
+    cache: ExposureCache,
 }
 
 impl<'a> RunEvaluator<'a> {
@@ -297,6 +302,10 @@ impl<'a> RunEvaluator<'a> {
             geometry.hamiltonian.interaction_range,
             &noise.instances,
         );
+        let index = match &graph {
+            Ok(_) => InstanceIndex::new(&noise.instances, lattice.n_sites()),
+            Err(_) => InstanceIndex::new(&[], 0),
+        };
         Ok(RunEvaluator {
             times,
             noise,
@@ -305,30 +314,9 @@ impl<'a> RunEvaluator<'a> {
             sources,
             noise_terms: Vec::new(),
             graph,
-            exposures: Vec::new(),
-            exposure_values: 0,
+            index,
+            cache: ExposureCache::new(EXPOSURE_BUDGET),
         })
-    }
-
-    /// The index in `self.exposures` of the exposure of `support` (computed if not kept).
-    fn exposure(&mut self, support: &[usize]) -> usize {
-        if let Some(i) = self.exposures.iter().position(|(s, _)| s == support) {
-            return i;
-        }
-        let e = match &self.graph {
-            Ok(g) => Exposure::new(g, support, &self.noise.instances, self.times),
-            Err(why) => Err(why.clone()),
-        };
-        let size = e
-            .as_ref()
-            .map_or(0, |e| e.region().len() * self.times.len());
-        if self.exposure_values + size > EXPOSURE_BUDGET {
-            self.exposures.clear();
-            self.exposure_values = 0;
-        }
-        self.exposure_values += size;
-        self.exposures.push((support.to_vec(), e));
-        self.exposures.len() - 1
     }
 
     /// The light-cone terms of an observable at every time (`None` when unavailable) and the
@@ -345,13 +333,13 @@ impl<'a> RunEvaluator<'a> {
         if support.is_empty() {
             return unavailable(&Unavailable::GlobalObservable);
         }
-        if let Err(why) = &self.graph {
-            return unavailable(why);
-        }
-        let i = self.exposure(support);
-        let (graph, exposure) = match (&self.graph, &self.exposures[i].1) {
-            (Ok(g), Ok(e)) => (g, e),
-            (Err(why), _) | (_, Err(why)) => return unavailable(why),
+        let graph = match &self.graph {
+            Ok(g) => g,
+            Err(why) => return unavailable(why),
+        };
+        let exposure = match self.cache.exposure(graph, &self.index, self.times, support) {
+            Ok(e) => e,
+            Err(why) => return unavailable(&why),
         };
         let inputs = LocalInputs {
             graph,
@@ -365,8 +353,9 @@ impl<'a> RunEvaluator<'a> {
             p: self.split.p_point,
             p_single: self.split.p_single_point,
         };
-        let local = local_bounds_with(&inputs, exposure);
-        let by_term = terms.map(|t| term_bounds(&inputs, t, exposure));
+        let local = local_bounds_with(&inputs, &exposure);
+        let by_term =
+            terms.map(|t| term_bounds_cached(&inputs, t, &exposure, &self.index, &mut self.cache));
         let status = LightCone::Computed {
             order: exposure.order(),
             region_sources: exposure.region().len(),
