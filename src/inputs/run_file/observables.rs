@@ -150,7 +150,7 @@ thread_local! {
 }
 
 /// Hands the storage of a kept R × T array back for the next observable read on this thread
-/// (see [`read_observables`] with `keep`).
+/// (the observables read whole, as `certify` reads them).
 pub fn recycle_values(values: Array2<f64>) {
     let (v, _) = values.into_raw_vec_and_offset();
     SPARE.with(|s| s.set(v));
