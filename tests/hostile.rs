@@ -107,6 +107,29 @@ fn inputs() -> tempfile::TempDir {
 }
 
 /// `certify RUN --noise NOISE` (default output `RUN.cert.json` beside the run).
+/// `quassay budget` for `noise` on an 8-site chain (a planning question any record answers).
+fn budget_args(noise: &Path, json: bool) -> Vec<OsString> {
+    let mut args = os(&[
+        &"budget",
+        &"--noise",
+        &noise,
+        &"--lattice",
+        &"chain:8",
+        &"--time-unit",
+        &"us",
+        &"--spectrum",
+        &"-1,1",
+        &"--target",
+        &"0.1",
+        &"--time",
+        &"1",
+    ]);
+    if json {
+        args.push("--json".into());
+    }
+    args
+}
+
 fn certify_args(run: &Path, noise: &Path) -> Vec<OsString> {
     os(&[&"certify", &run, &"--noise", &noise])
 }
@@ -368,22 +391,7 @@ fn every_broken_noise_record_is_refused_by_certify_and_nothing_is_written() {
         let name = path.file_name().unwrap().to_str().unwrap();
         let want = ["cannot read", name, what, "give the path of a noise record"];
         refused(dir.path(), &certify_args(&run_path, path), 1, &want);
-        let budget = os(&[
-            &"budget",
-            &"--noise",
-            path,
-            &"--lattice",
-            &"chain:8",
-            &"--time-unit",
-            &"us",
-            &"--spectrum",
-            &"-1,1",
-            &"--target",
-            &"0.1",
-            &"--time",
-            &"1",
-        ]);
-        refused(dir.path(), &budget, 1, &want);
+        refused(dir.path(), &budget_args(path, false), 1, &want);
     }
 }
 
@@ -409,22 +417,7 @@ fn a_folder_or_a_fifo_given_as_the_scenario_is_refused() {
 #[test]
 fn a_record_with_a_utf8_byte_order_mark_reads_as_the_same_record() {
     let budget = |noise: &Path| {
-        let r = run(&os(&[
-            &"budget",
-            &"--noise",
-            &noise,
-            &"--lattice",
-            &"chain:8",
-            &"--time-unit",
-            &"us",
-            &"--spectrum",
-            &"-1,1",
-            &"--target",
-            &"0.1",
-            &"--time",
-            &"1",
-            &"--json",
-        ]));
+        let r = run(&budget_args(noise, true));
         assert_eq!(r.code, Some(0), "{}", r.stderr);
         let mut v: Value = serde_json::from_str(&r.stdout).unwrap();
         // The only difference allowed: the file's name.

@@ -521,28 +521,7 @@ fn table_text(planned: &[Planned], results: &[Line]) -> String {
             cert,
         ]);
     }
-    let widths: Vec<usize> = (0..6)
-        .map(|j| {
-            table
-                .iter()
-                .map(|row| row[j].chars().count())
-                .max()
-                .unwrap_or(0)
-        })
-        .collect();
-    for row in &table {
-        let cells: Vec<String> = row
-            .iter()
-            .zip(&widths)
-            .enumerate()
-            .map(|(j, (cell, w))| match j {
-                0 | 3 | 4 => format!("{cell:>w$}"),
-                _ => format!("{cell:<w$}"),
-            })
-            .collect();
-        s.push_str(cells.join("  ").trim_end());
-        s.push('\n');
-    }
+    s.push_str(&super::certify::aligned(&table, |j| matches!(j, 0 | 3 | 4)));
     s.push_str(
         "\nmax E_avg: largest E_avg over the run's observables and times; F_low(last t): \
          fidelity lower bound at the last time.\n",

@@ -330,31 +330,7 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
             fid.clone(),
         ]);
     }
-    let widths: Vec<usize> = (0..7)
-        .map(|j| {
-            table
-                .iter()
-                .map(|row| row[j].chars().count())
-                .max()
-                .unwrap_or(0)
-        })
-        .collect();
-    for row in &table {
-        let cells: Vec<String> = row
-            .iter()
-            .zip(&widths)
-            .enumerate()
-            .map(|(j, (cell, w))| {
-                if j == 0 {
-                    format!("{cell:<w$}")
-                } else {
-                    format!("{cell:>w$}")
-                }
-            })
-            .collect();
-        s.push_str(cells.join("  ").trim_end());
-        s.push('\n');
-    }
+    s.push_str(&aligned(&table, |j| j > 0));
     s.push_str(
         "\nE_avg: error of the averaged trace from the noise; E_shot: from the finite shots; \
          worst case: no cancellation between sources; gain: worst case / E_avg.\n",
@@ -417,6 +393,42 @@ pub(super) fn summary_json(
         },
         "notes": notes,
     })
+}
+
+/// The rows of a table as text, one line each, columns padded to their widest cell and two
+/// spaces apart; a column is right-aligned where `right(j)` says so (numbers), else left.
+pub(super) fn aligned<const N: usize>(
+    table: &[[String; N]],
+    right: impl Fn(usize) -> bool,
+) -> String {
+    let widths: Vec<usize> = (0..N)
+        .map(|j| {
+            table
+                .iter()
+                .map(|row| &row[j])
+                .map(|cell| cell.chars().count())
+                .max()
+                .unwrap_or(0)
+        })
+        .collect();
+    let mut s = String::new();
+    for row in table {
+        let cells: Vec<String> = row
+            .iter()
+            .zip(&widths)
+            .enumerate()
+            .map(|(j, (cell, w))| {
+                if right(j) {
+                    format!("{cell:>w$}")
+                } else {
+                    format!("{cell:<w$}")
+                }
+            })
+            .collect();
+        s.push_str(cells.join("  ").trim_end());
+        s.push('\n');
+    }
+    s
 }
 
 #[cfg(test)]
