@@ -6,6 +6,8 @@
 //! what does not follow from the inputs (issue time, host, command line) and is not covered.
 
 use std::path::Path;
+use std::sync::mpsc::{sync_channel, Receiver};
+use std::sync::OnceLock;
 
 use serde_json::{json, Value};
 
@@ -31,21 +33,94 @@ pub fn body_digest(body: &Value) -> Option<String> {
 /// The file's top level, borrowing the body and envelope (serialised in the order of the
 /// names, as serde_json's sorted map writes them, so the text is the same as before).
 #[derive(serde::Serialize)]
-struct FileView<'a> {
+struct FileView<'a, D: serde::Serialize> {
     body: &'a Value,
-    digest: &'a str,
+    digest: D,
     digest_method: &'static str,
     envelope: &'a Value,
     format: &'static str,
     format_version: u64,
 }
 
+/// A digest being computed on another thread, serialised when serde reaches it: after the
+/// body, which is therefore written to the file while it is hashed (the two serialisations of
+/// a large body then take one's time on two cores).
+struct PendingDigest<'a> {
+    rx: &'a Receiver<Option<String>>,
+    got: &'a OnceLock<Option<String>>,
+}
+
+impl serde::Serialize for PendingDigest<'_> {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        match self.got.get_or_init(|| self.rx.recv().ok().flatten()) {
+            Some(d) => s.serialize_str(d),
+            None => Err(serde::ser::Error::custom(
+                "the certificate body has no canonical form",
+            )),
+        }
+    }
+}
+
 const DIGEST_METHOD: &str = "SHA-256 of the RFC 8785 (JSON Canonicalization Scheme) form of body";
+
+/// Writes the file's text (pretty-printed, final newline) to the temporary `tmp` standing for
+/// `path`, through a buffer: the text is never held whole.
+fn write_view(view: &impl serde::Serialize, tmp: &Path, path: &Path) -> Result<()> {
+    let fail = |e: std::io::Error| Error::Write {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    };
+    let file = std::fs::File::create(tmp).map_err(fail)?;
+    let mut w = std::io::BufWriter::with_capacity(1 << 16, file);
+    serde_json::to_writer_pretty(&mut w, view).map_err(|e| fail(std::io::Error::other(e)))?;
+    std::io::Write::write_all(&mut w, b"\n").map_err(fail)?;
+    std::io::Write::flush(&mut w).map_err(fail)
+}
 
 impl Certificate {
     /// Seals `body` with its digest and the given envelope.
     pub fn seal(body: Value, envelope: Value) -> Result<Certificate> {
         let digest = body_digest(&body).ok_or_else(|| {
+            Error::Options("internal: the certificate body holds a non-finite number".into())
+        })?;
+        Ok(Certificate {
+            body,
+            digest,
+            envelope,
+        })
+    }
+
+    /// Seals `body` and writes the certificate to `path` as [`Certificate::write_to`] does,
+    /// hashing the body on a second thread while it is written: the same file as `seal`
+    /// followed by `write_to`, in about half the time for a large body.
+    pub fn seal_and_write(
+        body: Value,
+        envelope: Value,
+        path: &Path,
+        force: bool,
+    ) -> Result<Certificate> {
+        let got = OnceLock::new();
+        let written = std::thread::scope(|scope| {
+            let (tx, rx) = sync_channel(1);
+            let body = &body;
+            scope.spawn(move || {
+                // The writer may have given up (it then reports why); nobody to tell.
+                let _ = tx.send(body_digest(body));
+            });
+            crate::outputs::atomic::write_file(path, force, |tmp| {
+                let view = FileView {
+                    body,
+                    digest: PendingDigest { rx: &rx, got: &got },
+                    digest_method: DIGEST_METHOD,
+                    envelope: &envelope,
+                    format: FORMAT,
+                    format_version: FORMAT_VERSION,
+                };
+                write_view(&view, tmp, path)
+            })
+        });
+        written?;
+        let digest = got.into_inner().flatten().ok_or_else(|| {
             Error::Options("internal: the certificate body holds a non-finite number".into())
         })?;
         Ok(Certificate {
@@ -84,14 +159,15 @@ impl Certificate {
     /// existing `path` is an error and is left untouched.
     pub fn write_to(&self, path: &Path, force: bool) -> Result<()> {
         crate::outputs::atomic::write_file(path, force, |tmp| {
-            let fail = |e: std::io::Error| Error::Write {
-                path: path.to_path_buf(),
-                message: e.to_string(),
+            let view = FileView {
+                body: &self.body,
+                digest: self.digest.as_str(),
+                digest_method: DIGEST_METHOD,
+                envelope: &self.envelope,
+                format: FORMAT,
+                format_version: FORMAT_VERSION,
             };
-            let file = std::fs::File::create(tmp).map_err(fail)?;
-            let mut w = std::io::BufWriter::with_capacity(1 << 16, file);
-            self.write_file_text(&mut w).map_err(fail)?;
-            std::io::Write::flush(&mut w).map_err(fail)
+            write_view(&view, tmp, path)
         })
     }
 
@@ -226,6 +302,24 @@ pub fn rfc3339_from_unix(secs: u64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Sealing while writing gives the file, digest and certificate of sealing first and
+    /// writing afterwards, and refuses an existing file without `force` just the same.
+    #[test]
+    fn sealing_while_writing_gives_the_same_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let body = json!({"z": [1, 2.5, -0.0, 1e-7], "a": {"b": "ü\u{2028}"}});
+        let env = json!({"host": "h"});
+        let (one, two) = (dir.path().join("one.json"), dir.path().join("two.json"));
+        let a = Certificate::seal(body.clone(), env.clone()).unwrap();
+        a.write_to(&one, false).unwrap();
+        let b = Certificate::seal_and_write(body.clone(), env.clone(), &two, false).unwrap();
+        assert_eq!(a, b);
+        assert_eq!(std::fs::read(&one).unwrap(), std::fs::read(&two).unwrap());
+        assert!(Certificate::seal_and_write(body.clone(), env.clone(), &two, false).is_err());
+        Certificate::seal_and_write(body, env, &two, true).unwrap();
+        assert_eq!(std::fs::read(&one).unwrap(), std::fs::read(&two).unwrap());
+    }
 
     #[test]
     fn unix_times_format_as_rfc_3339() {

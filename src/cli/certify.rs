@@ -107,9 +107,13 @@ pub(super) fn certify_one(job: &Job, progress: &Progress) -> crate::Result<Certi
     progress.done();
     let mut computed = computed?;
     // The body moves into the certificate (no copy: it can hold millions of numbers) and is
-    // streamed to the file.
-    let cert = Certificate::seal(std::mem::take(&mut computed.body), envelope_now())?;
-    cert.write_to(job.output, job.force)?;
+    // streamed to the file while its digest is computed on another thread.
+    let cert = Certificate::seal_and_write(
+        std::mem::take(&mut computed.body),
+        envelope_now(),
+        job.output,
+        job.force,
+    )?;
     if let Some(report) = job.report {
         super::report::write_report(&cert, job.output, report, job.force)?;
     }
