@@ -212,13 +212,19 @@ pub fn fluctuation(sources: &[SourceData], sens: &[f64], p: f64) -> Fluctuation 
     }
     let g = route_gaussian(sources, sens, p);
     let d = route_bounded_differences(sources, sens, p);
+    smallest_route(g, d, route_mixed(sources, sens, p))
+}
+
+/// The smallest of the routes that apply, ties to G, then D, then the mixed route; no route:
+/// an infinite radius.
+fn smallest_route(g: Option<f64>, d: Option<f64>, mixed: Option<f64>) -> Fluctuation {
     let pick = match (g, d) {
         (Some(g), Some(d)) if d < g => Some((d, FluctuationRoute::BoundedDifferences)),
         (Some(g), _) => Some((g, FluctuationRoute::Gaussian)),
         (None, Some(d)) => Some((d, FluctuationRoute::BoundedDifferences)),
         (None, None) => None,
     };
-    let pick = match (pick, route_mixed(sources, sens, p)) {
+    let pick = match (pick, mixed) {
         (Some((v, _)), Some(m)) if m < v => Some((m, FluctuationRoute::Mixed)),
         (None, Some(m)) => Some((m, FluctuationRoute::Mixed)),
         (pick, _) => pick,
@@ -308,12 +314,6 @@ impl FluctuationScale {
         let d = self
             .bounded_differences
             .map(|c| c * (0.5 * (2.0 / p).ln()).sqrt());
-        let pick = match (g, d) {
-            (Some(g), Some(d)) if d < g => Some((d, FluctuationRoute::BoundedDifferences)),
-            (Some(g), _) => Some((g, FluctuationRoute::Gaussian)),
-            (None, Some(d)) => Some((d, FluctuationRoute::BoundedDifferences)),
-            (None, None) => None,
-        };
         let mixed = self.mixed.map(|candidates| {
             let half = 0.5 * p;
             let mut best: Option<f64> = None;
@@ -323,21 +323,7 @@ impl FluctuationScale {
             }
             best.unwrap_or(f64::INFINITY)
         });
-        let pick = match (pick, mixed) {
-            (Some((v, _)), Some(m)) if m < v => Some((m, FluctuationRoute::Mixed)),
-            (None, Some(m)) => Some((m, FluctuationRoute::Mixed)),
-            (pick, _) => pick,
-        };
-        match pick {
-            Some((value, route)) => Fluctuation {
-                value,
-                route: Some(route),
-            },
-            None => Fluctuation {
-                value: f64::INFINITY,
-                route: None,
-            },
-        }
+        smallest_route(g, d, mixed)
     }
 }
 
