@@ -638,24 +638,7 @@ fn no_command_modifies_its_inputs() {
     check(os(&[&"review", &cert, &"--inputs", &inp]), &[0]);
     let html = out.path().join("r.html");
     check(os(&[&"report", &cert, &"-o", &html]), &[0]);
-    check(
-        os(&[
-            &"budget",
-            &"--noise",
-            &noise,
-            &"--lattice",
-            &"chain:6",
-            &"--time-unit",
-            &"us",
-            &"--spectrum",
-            &"-1,1",
-            &"--target",
-            &"0.1",
-            &"--time",
-            &"1",
-        ]),
-        &[0],
-    );
+    check(budget_args(&noise, false), &[0]);
     assert_eq!(
         entries(inp),
         ["c.json", "noise.json", "run.h5", "scenario.json"]

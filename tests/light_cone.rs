@@ -11,7 +11,9 @@ use std::path::Path;
 
 use serde_json::{json, Value};
 
-use crate::util::{certified, numbers, observable, quassay, scratch, strings, truth};
+use crate::util::{
+    assert_holds_on_exact_simulation, certified, numbers, observable, quassay, scratch, strings,
+};
 
 /// Tolerance of the exact simulation (the propagator is exact to about 1e-10 in the state).
 const SIM_TOL: f64 = 1e-8;
@@ -144,39 +146,7 @@ fn a_local_observable_in_a_long_chain_gets_the_smaller_light_cone_statement_and_
         light_cone_points += used.iter().filter(|s| **s == "light_cone").count();
 
         // Against the exact simulation.
-        let ideal = truth(d, &format!("observables/{name}/ideal"));
-        let exact = truth(d, &format!("observables/{name}/exact")); // R × T
-        let (lower, upper) = (numbers(&o["lower"]), numbers(&o["upper"]));
-        let e_wc = numbers(&o["e_wc"]);
-        for k in 0..n_t {
-            let id = ideal[[k]];
-            // The certified interval contains the ideal value (probability ≥ 0.95 for all
-            // points together; fixed seed).
-            assert!(
-                lower[k] <= id && id <= upper[k],
-                "{name} t={}: ideal {id} outside [{}, {}]",
-                times[k],
-                lower[k],
-                upper[k]
-            );
-            // The worst case of the reported statement holds for every draw (probability 1).
-            let col = exact.index_axis(ndarray::Axis(1), k);
-            for &x in col.iter() {
-                assert!(
-                    (x - id).abs() <= e_wc[k] + SIM_TOL,
-                    "{name} t={}: |{x} - {id}| > e_wc {}",
-                    times[k],
-                    e_wc[k]
-                );
-            }
-            // The noise average of the realizations (no shot noise) is within e_avg.
-            let mean = col.iter().sum::<f64>() / col.len() as f64;
-            assert!(
-                (mean - id).abs() <= e_avg[k] + SIM_TOL,
-                "{name} t={}",
-                times[k]
-            );
-        }
+        assert_holds_on_exact_simulation(d, name, o, &times, &e_avg, SIM_TOL);
 
         // The consistency check's V_noise: never above the global Efron–Stein sum, and below
         // it where the light cone is used.

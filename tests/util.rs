@@ -117,3 +117,41 @@ pub fn truth(dir: &Path, path: &str) -> ndarray::ArrayD<f64> {
     let f = hdf5::File::open(dir.join("truth.h5")).unwrap();
     f.dataset(path).unwrap().read_dyn::<f64>().unwrap()
 }
+
+/// Asserts the certificate's observable `o` (named `name`) against the exact simulation in
+/// `dir`'s `truth.h5` at every time: the certified interval contains the ideal value (a
+/// statement of probability ≥ the confidence for all points together; fixed seed), the worst
+/// case `e_wc` holds for every draw (probability 1), and the noise average of the realizations
+/// (no shot noise) is within `e_avg`, all up to the simulation's tolerance `tol`.
+pub fn assert_holds_on_exact_simulation(
+    dir: &Path,
+    name: &str,
+    o: &serde_json::Value,
+    times: &[f64],
+    e_avg: &[f64],
+    tol: f64,
+) {
+    let ideal = truth(dir, &format!("observables/{name}/ideal"));
+    let exact = truth(dir, &format!("observables/{name}/exact")); // R × T
+    let (lower, upper) = (numbers(&o["lower"]), numbers(&o["upper"]));
+    let e_wc = numbers(&o["e_wc"]);
+    for (k, &t) in times.iter().enumerate() {
+        let id = ideal[[k]];
+        assert!(
+            lower[k] <= id && id <= upper[k],
+            "{name} t={t}: ideal {id} outside [{}, {}]",
+            lower[k],
+            upper[k]
+        );
+        let col = exact.index_axis(ndarray::Axis(1), k);
+        for &x in col.iter() {
+            assert!(
+                (x - id).abs() <= e_wc[k] + tol,
+                "{name} t={t}: |{x} - {id}| > e_wc {}",
+                e_wc[k]
+            );
+        }
+        let mean = col.iter().sum::<f64>() / col.len() as f64;
+        assert!((mean - id).abs() <= e_avg[k] + tol, "{name} t={t}");
+    }
+}
