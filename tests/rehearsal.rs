@@ -190,18 +190,24 @@ fn assert_understated_record_is_flagged(reports: &[ChecksReport], what: &str) {
 fn assert_certify_exits_3(s: &Scenario, seed: u64) {
     let dir = scratch();
     write_inputs(s, seed, dir.path());
-    let cert = dir.path().join("run.cert.json");
+    let v = certify_in(dir.path(), 3);
+    assert_eq!(v["body"]["verdict"]["status"], "inconsistent");
+}
+
+/// `quassay certify` of `run.h5` with `noise.json` in `dir`, asserting exit `code`; the
+/// certificate it wrote.
+fn certify_in(dir: &Path, code: i32) -> Value {
+    let cert = dir.join("run.cert.json");
     quassay()
         .arg("certify")
-        .arg(dir.path().join("run.h5"))
+        .arg(dir.join("run.h5"))
         .arg("--noise")
-        .arg(dir.path().join("noise.json"))
+        .arg(dir.join("noise.json"))
         .arg("-o")
         .arg(&cert)
         .assert()
-        .code(3);
-    let v: Value = serde_json::from_str(&std::fs::read_to_string(&cert).unwrap()).unwrap();
-    assert_eq!(v["body"]["verdict"]["status"], "inconsistent");
+        .code(code);
+    serde_json::from_str(&std::fs::read_to_string(&cert).unwrap()).unwrap()
 }
 
 #[test]
@@ -282,17 +288,7 @@ fn a_run_with_one_realization_certifies_with_the_variance_checks_not_possible() 
     // The ideal-reference tests still run: four observables at five times.
     assert_eq!(r.n_tests, 20);
 
-    let cert = dir.path().join("run.cert.json");
-    quassay()
-        .arg("certify")
-        .arg(dir.path().join("run.h5"))
-        .arg("--noise")
-        .arg(dir.path().join("noise.json"))
-        .arg("-o")
-        .arg(&cert)
-        .assert()
-        .code(0);
-    let v: Value = serde_json::from_str(&std::fs::read_to_string(&cert).unwrap()).unwrap();
+    let v = certify_in(dir.path(), 0);
     assert_eq!(v["body"]["checks"]["variance"]["status"], "not_possible");
     assert_eq!(v["body"]["verdict"]["status"], "consistent");
 }
