@@ -2,6 +2,9 @@
 
 fn main() -> std::process::ExitCode {
     keep_freed_memory();
+    // Run files are hashed from a memory mapping: a file truncated meanwhile by another
+    // program must end with a message and exit code 1, not a crash.
+    quassay::inputs::mapped::report_truncation_on_sigbus();
     quassay::cli::main()
 }
 

@@ -23,10 +23,17 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
     hex(&Sha256::digest(bytes))
 }
 
-/// Size in bytes and lowercase hexadecimal SHA-256 of a file, read in 1 MiB blocks.
+/// Size in bytes and lowercase hexadecimal SHA-256 of a file: hashed in place from a
+/// read-only mapping ([`crate::inputs::mapped`], no copy through a buffer), or read in 1 MiB
+/// blocks when the file cannot be mapped.
 pub fn sha256_file(path: &Path) -> std::io::Result<(u64, String)> {
     let mut file = std::fs::File::open(path)?;
+    let len = file.metadata()?.len();
     let mut hasher = Sha256::new();
+    if let Some(map) = crate::inputs::mapped::Mapped::map(&file, len) {
+        map.read_in_pieces(1 << 20, |piece| hasher.update(piece));
+        return Ok((len, hex(&hasher.finalize())));
+    }
     let mut buf = vec![0u8; 1 << 20];
     let mut size = 0u64;
     loop {
@@ -74,6 +81,19 @@ pub fn encode_i64(values: &[i64], out: &mut Vec<u8>) {
     }
 }
 
+/// The bytes of `values` in memory, which on a little-endian machine are already the content
+/// stream's encoding (IEEE 754 binary64, 8 little-endian bytes each): hashed in place, with no
+/// copy. `None` on a big-endian machine, which encodes them instead.
+fn le_bytes(values: &[f64]) -> Option<&[u8]> {
+    if cfg!(target_endian = "little") {
+        // SAFETY: an f64 is 8 initialised bytes with no padding, u8 has alignment 1, and the
+        // byte slice covers exactly the memory of `values`, borrowed for as long.
+        Some(unsafe { std::slice::from_raw_parts(values.as_ptr().cast::<u8>(), 8 * values.len()) })
+    } else {
+        None
+    }
+}
+
 /// The element kind of a content digest.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum ContentKind {
@@ -117,7 +137,10 @@ impl ContentHasher {
         if self.kind != ContentKind::F64 {
             return false;
         }
-        self.push_encoded(values, |v, out| out.copy_from_slice(&v.to_le_bytes()));
+        match le_bytes(values) {
+            Some(bytes) => self.hasher.update(bytes),
+            None => self.push_encoded(values, |v, out| out.copy_from_slice(&v.to_le_bytes())),
+        }
         true
     }
 
