@@ -3,12 +3,14 @@
 //! `certify` and `verify` both go through [`compute_body`], so a certificate reproduces exactly
 //! when the inputs, the options and the tool version are the same.
 //!
-//! Speed and memory (the run file dominates both): the run is streamed, one observable and
-//! one row block (about 1 MiB) at a time; each block is checked, summed for the bounds and
-//! sent to a hashing thread for the content digests, while a third thread hashes the file's
-//! bytes. Nothing of size R × T × K is held. The numbers do not depend on the threads: each
-//! digest sees its bytes in file order, and every sum is taken in realization order on one
-//! thread.
+//! Speed and memory (the run file dominates both): the run is read one observable at a time,
+//! straight into the storage of the kept array (no block copies); it is checked and summed for
+//! the bounds row block by row block (about 1 MiB each), then checked against the record, and
+//! then sent whole to a hashing thread for its content digest, which hashes it while the next
+//! observable is read and hands the storage back. A third thread hashes the file's bytes
+//! (from a memory mapping). Nothing of size R × T × K is held: at most three observables'
+//! R × T values. The numbers do not depend on the threads: each digest sees its bytes in
+//! row-major order, and every sum is taken in realization order on one thread.
 
 use std::collections::HashMap;
 use std::path::Path;
@@ -24,7 +26,7 @@ use crate::bounds::run_bounds::{ObservableBounds, RunBounds, RunEvaluator, RunGe
 use crate::checks::report::{CheckPlan, ChecksReport, ObservableChecks};
 use crate::error::{Error, InputKind, Result};
 use crate::inputs::noise_record::read_noise_record;
-use crate::inputs::run_file::{open_run, recycle_values, ContentSink, NoContent, RunOutline};
+use crate::inputs::run_file::{open_run, recycle_storage, ContentSink, NoContent, RunOutline};
 use crate::model::{NoiseModel, NoiseRecord};
 
 /// Everything a certificate is computed from, read and checked (the run without its R × T
@@ -93,13 +95,18 @@ pub fn compute_body(
         let file_hash = scope.spawn(|| FileRecord::of(run_path, recorded_run));
         let (tx, rx) = sync_channel::<Message>(IN_FLIGHT);
         let (recycle_tx, recycle_rx) = sync_channel::<Vec<u8>>(IN_FLIGHT + 2);
-        let hasher = scope.spawn(move || hash_blocks(rx, recycle_tx));
+        let (kept_back_tx, kept_back_rx) = sync_channel::<Vec<f64>>(KEPT_BACK);
+        let hasher = scope.spawn(move || hash_blocks(rx, recycle_tx, kept_back_tx));
+        let kept = KeptSender {
+            tx: tx.clone(),
+            back: kept_back_rx,
+        };
         let mut sink = ThreadedSink {
             tx,
             recycle: recycle_rx,
             buf: Vec::new(),
         };
-        let streamed = stream_run(run_path, noise_path, options, &mut sink);
+        let streamed = stream_run(run_path, noise_path, options, &mut sink, kept);
         drop(sink);
         let content = hasher.join().unwrap_or_default();
         let file = file_hash.join();
@@ -142,6 +149,7 @@ fn stream_run(
     noise_path: &Path,
     options: &CertifyOptions,
     sink: &mut dyn ContentSink,
+    kept: KeptSender,
 ) -> Result<(Loaded, RunBounds, ChecksReport, SmallDigests)> {
     let stream = open_run(run_path)?;
     let noise = read_noise_record(noise_path);
@@ -233,7 +241,15 @@ fn stream_run(
         }
         small.push(small_digests(&o.outline));
         if let Some(whole) = o.kept {
-            recycle_values(whole.values);
+            // The kept float datasets go to the hashing thread now (the sink took none of
+            // their blocks), which hashes them while the next observable is read and hands
+            // their storage back for a later one.
+            let at = format!("/observables/{}", whole.name);
+            kept.send(format!("{at}/values"), whole.values);
+            if let Some(stderr) = whole.stderr {
+                kept.send(format!("{at}/stderr"), stderr);
+            }
+            kept.recycle();
         }
     })?;
     let bounds = ev.map(|ev| ev.finish(observables));
@@ -280,6 +296,9 @@ const IN_FLIGHT: usize = 4;
 /// Bytes per message to the hashing thread: 1 MiB.
 const SEND_BYTES: usize = 1 << 20;
 
+/// Kept arrays whose storage the hashing thread may hold at once before handing it back.
+const KEPT_BACK: usize = 2;
+
 enum Message {
     Begin {
         path: String,
@@ -288,7 +307,43 @@ enum Message {
     },
     Data(Vec<u8>),
     Floats(Vec<f64>),
+    /// A whole kept float dataset; its storage is handed back once hashed.
+    Kept(Vec<f64>),
     End,
+}
+
+/// Sends the float datasets kept whole to the hashing thread (see
+/// [`ContentSink::takes_kept_floats`]) and takes back storage it is done with.
+struct KeptSender {
+    tx: SyncSender<Message>,
+    back: Receiver<Vec<f64>>,
+}
+
+impl KeptSender {
+    /// The whole dataset at `path`, as one message.
+    fn send(&self, path: String, values: ndarray::Array2<f64>) {
+        let shape = values.shape().to_vec();
+        let values = if values.is_standard_layout() {
+            values.into_raw_vec_and_offset().0
+        } else {
+            values.iter().copied().collect()
+        };
+        // A closed channel means the hashing thread has gone; its result says so.
+        let _ = self.tx.send(Message::Begin {
+            path,
+            kind: ContentKind::F64,
+            shape,
+        });
+        let _ = self.tx.send(Message::Kept(values));
+        let _ = self.tx.send(Message::End);
+    }
+
+    /// Storage the hashing thread has finished with, for the next observable's read.
+    fn recycle(&self) {
+        while let Ok(v) = self.back.try_recv() {
+            recycle_storage(v);
+        }
+    }
 }
 
 /// Sends the content, encoded as the digest's byte stream, to the hashing thread.
@@ -346,10 +401,17 @@ impl ContentSink for ThreadedSink {
         self.flush();
         self.send(Message::End);
     }
+    fn takes_kept_floats(&self) -> bool {
+        true
+    }
 }
 
 /// The hashing thread: digests each dataset's bytes in the order they arrive.
-fn hash_blocks(rx: Receiver<Message>, recycle: SyncSender<Vec<u8>>) -> Vec<DatasetDigest> {
+fn hash_blocks(
+    rx: Receiver<Message>,
+    recycle: SyncSender<Vec<u8>>,
+    kept_back: SyncSender<Vec<f64>>,
+) -> Vec<DatasetDigest> {
     let mut out = Vec::new();
     let mut current: Option<(String, ContentKind, Vec<usize>, ContentHasher)> = None;
     for m in rx {
@@ -369,6 +431,13 @@ fn hash_blocks(rx: Receiver<Message>, recycle: SyncSender<Vec<u8>>) -> Vec<Datas
                 if let Some((_, _, _, h)) = current.as_mut() {
                     h.push_f64(&values);
                 }
+            }
+            Message::Kept(values) => {
+                if let Some((_, _, _, h)) = current.as_mut() {
+                    h.push_f64(&values);
+                }
+                // Full: the reader has storage enough; this one is dropped.
+                let _ = kept_back.try_send(values);
             }
             Message::End => {
                 if let Some((path, kind, shape, h)) = current.take() {
@@ -407,21 +476,36 @@ mod tests {
         };
         let mut plain = super::super::record::DigestSink::default();
         feed(&mut plain);
+        plain.begin("/c", ContentKind::F64, &[400, 1000]);
+        plain.floats(&floats);
+        plain.end();
         let (tx, rx) = sync_channel(IN_FLIGHT);
         let (rtx, rrx) = sync_channel(IN_FLIGHT + 2);
-        let threaded = std::thread::scope(|s| {
-            let h = s.spawn(move || hash_blocks(rx, rtx));
+        let (ktx, krx) = sync_channel(KEPT_BACK);
+        let (threaded, back) = std::thread::scope(|s| {
+            let h = s.spawn(move || hash_blocks(rx, rtx, ktx));
+            let kept = KeptSender {
+                tx: tx.clone(),
+                back: krx,
+            };
             let mut sink = ThreadedSink {
                 tx,
                 recycle: rrx,
                 buf: Vec::new(),
             };
+            assert!(sink.takes_kept_floats());
             feed(&mut sink);
+            // A kept array goes whole, and its storage comes back.
+            let whole = ndarray::Array2::from_shape_vec((400, 1000), floats.clone()).unwrap();
+            kept.send("/c".into(), whole);
             drop(sink);
-            h.join().unwrap()
+            drop(kept.tx);
+            let digests = h.join().unwrap();
+            (digests, kept.back.recv().unwrap())
         });
         assert_eq!(threaded, plain.digests);
-        assert_eq!(threaded.len(), 2);
+        assert_eq!(threaded.len(), 3);
+        assert_eq!(back, floats);
     }
 
     /// The streaming path (row blocks, threads, per-time sums, shared noise terms) gives the

@@ -28,7 +28,7 @@ use crate::error::{Error, InputKind, Problem, Result};
 use crate::model::Run;
 
 pub use checks::{range_tolerance, valid_name};
-pub use observables::recycle_values;
+pub use observables::recycle_storage;
 pub use stream::{ContentSink, NoContent, ObservableOutline, ObservableRead, RunOutline};
 
 /// What `inspect` shows of a run file: whatever could be read, even from a file with problems.

@@ -56,6 +56,90 @@ pub fn check_times(times: &[f64]) -> Vec<String> {
     out
 }
 
+/// What one pass over a block of values establishes for the scans below, so that they need
+/// no pass of their own when nothing is wrong: whether every value is finite, and the
+/// smallest and the largest value that is not NaN (±∞ included; `+∞` and `−∞` for a block
+/// of NaNs only).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct BlockExtent {
+    pub all_finite: bool,
+    pub min: f64,
+    pub max: f64,
+}
+
+impl BlockExtent {
+    /// The extent of `block`, by a pass of its own (for tests: readers take it in their
+    /// summing pass).
+    #[cfg(test)]
+    pub fn of(block: ArrayView2<f64>) -> BlockExtent {
+        let mut acc = ExtentColumns::new(1);
+        for &x in block.iter() {
+            acc.push_row(std::slice::from_ref(&x));
+        }
+        acc.extent()
+    }
+}
+
+/// Per-column accumulators of a [`BlockExtent`], updated row by row (element-wise over the
+/// columns, which the compiler vectorises; the pass that sums a block per time takes them
+/// along, see `observables::scan_floats`).
+#[derive(Debug, Clone)]
+pub struct ExtentColumns {
+    min: Vec<f64>,
+    max: Vec<f64>,
+    /// `Σ 0·x`: zero while every value is finite, NaN from the first NaN or infinity on.
+    probe: Vec<f64>,
+}
+
+impl ExtentColumns {
+    pub fn new(cols: usize) -> ExtentColumns {
+        ExtentColumns {
+            min: vec![f64::INFINITY; cols],
+            max: vec![f64::NEG_INFINITY; cols],
+            probe: vec![0.0; cols],
+        }
+    }
+
+    /// Starts again for the next block.
+    pub fn reset(&mut self) {
+        self.min.fill(f64::INFINITY);
+        self.max.fill(f64::NEG_INFINITY);
+        self.probe.fill(0.0);
+    }
+
+    /// Takes one row (as many values as columns).
+    #[inline]
+    pub fn push_row(&mut self, row: &[f64]) {
+        for (((lo, hi), p), &x) in self
+            .min
+            .iter_mut()
+            .zip(self.max.iter_mut())
+            .zip(self.probe.iter_mut())
+            .zip(row)
+        {
+            // A comparison with NaN is false: NaN is skipped by both.
+            *lo = if x < *lo { x } else { *lo };
+            *hi = if x > *hi { x } else { *hi };
+            *p += 0.0 * x;
+        }
+    }
+
+    /// The extent of the rows taken so far.
+    pub fn extent(&self) -> BlockExtent {
+        BlockExtent {
+            all_finite: self.probe.iter().all(|&p| p == 0.0),
+            min: self
+                .min
+                .iter()
+                .fold(f64::INFINITY, |m, &x| if x < m { x } else { m }),
+            max: self
+                .max
+                .iter()
+                .fold(f64::NEG_INFINITY, |m, &x| if x > m { x } else { m }),
+        }
+    }
+}
+
 /// Finds the non-finite entries of an R × T dataset read in row blocks: their count and the
 /// first position (row-major), as `check_finite_2d` reported them for a whole array.
 #[derive(Debug, Default)]
@@ -65,15 +149,17 @@ pub struct FiniteScan {
 }
 
 impl FiniteScan {
-    /// Scans `block`, whose first row is realization `r0`.
+    /// Scans `block`, whose first row is realization `r0` (for tests: readers use
+    /// `push_known`).
+    #[cfg(test)]
     pub fn push(&mut self, r0: usize, block: ArrayView2<f64>) {
-        // The common case, every value finite, needs no positions (a branch-free pass over
-        // the contiguous block, which the compiler vectorises).
-        let all_finite = match block.as_slice() {
-            Some(xs) => xs.iter().fold(true, |ok, v| ok & v.is_finite()),
-            None => block.iter().all(|v| v.is_finite()),
-        };
-        if all_finite {
+        self.push_known(r0, block, &BlockExtent::of(block));
+    }
+
+    /// [`FiniteScan::push`] with the block's extent already taken (in the pass that summed
+    /// it): the common case, every value finite, then needs no pass of its own.
+    pub fn push_known(&mut self, r0: usize, block: ArrayView2<f64>, extent: &BlockExtent) {
+        if extent.all_finite {
             return;
         }
         for ((r, k), v) in block.indexed_iter() {
@@ -123,16 +209,21 @@ impl RangeScan {
         }
     }
 
-    /// Scans `block`, whose first row is realization `r0`.
+    /// Scans `block`, whose first row is realization `r0` (for tests: readers use
+    /// `push_known`).
+    #[cfg(test)]
     pub fn push(&mut self, r0: usize, block: ArrayView2<f64>) {
+        self.push_known(r0, block, &BlockExtent::of(block));
+    }
+
+    /// [`RangeScan::push`] with the block's extent already taken. The common case, every
+    /// value finite and inside, needs no pass of its own: if the smallest and the largest
+    /// value pass the test, every value between them does, because rounded subtraction is
+    /// monotone (`lo − v ≤ lo − min` and `v − hi ≤ max − hi` after rounding too).
+    pub fn push_known(&mut self, r0: usize, block: ArrayView2<f64>, extent: &BlockExtent) {
         let (lo, hi, tol) = (self.lo, self.hi, self.tol);
-        // The common case, every value inside, needs no positions (the test is the one below).
-        let inside = |v: f64| (lo - v).max(v - hi) <= tol || !v.is_finite();
-        let all_inside = match block.as_slice() {
-            Some(xs) => xs.iter().fold(true, |ok, &v| ok & inside(v)),
-            None => block.iter().all(|&v| inside(v)),
-        };
-        if all_inside {
+        let inside = |v: f64| (lo - v).max(v - hi) <= tol;
+        if extent.all_finite && inside(extent.min) && inside(extent.max) {
             return;
         }
         for ((r, k), &v) in block.indexed_iter() {
@@ -332,6 +423,53 @@ mod tests {
         let mut scan = FiniteScan::default();
         scan.push(0, array![[0.5]].view());
         assert_eq!(scan.found(), None);
+    }
+
+    /// The extent a fused pass takes (row by row, per column) is the extent of the block, and
+    /// the scans' shortcut on it finds what a value-by-value scan finds, for values on both
+    /// sides of the edges of the tolerance, NaN and infinities.
+    #[test]
+    fn the_extent_shortcut_finds_what_a_full_scan_finds() {
+        let (lo, hi) = (-1.0, 1.0);
+        let tol = range_tolerance(lo, hi, 0.0);
+        let edge = [
+            lo - tol,
+            hi + tol,
+            f64::from_bits((lo - tol).to_bits() + 1),
+            f64::from_bits((hi + tol).to_bits() + 1),
+            0.25,
+            -0.0,
+        ];
+        let specials = [f64::NAN, f64::INFINITY, f64::NEG_INFINITY];
+        for case in 0..200usize {
+            let block = ndarray::Array2::from_shape_fn((3, 4), |(r, k)| {
+                let i = (case * 7 + r * 5 + k * 3) % 23;
+                if case % 5 == 0 && i == 4 {
+                    specials[case % 3]
+                } else if i < edge.len() && (case / 3) % 2 == 0 {
+                    edge[i]
+                } else {
+                    0.5 * ((i as f64) / 23.0 - 0.5)
+                }
+            });
+            let mut cols = ExtentColumns::new(4);
+            for row in block.rows() {
+                cols.push_row(row.as_slice().unwrap());
+            }
+            assert_eq!(cols.extent(), BlockExtent::of(block.view()), "case {case}");
+            let mut fast = RangeScan::new(lo, hi, tol);
+            fast.push_known(0, block.view(), &cols.extent());
+            let outside: Vec<f64> = block
+                .iter()
+                .copied()
+                .filter(|v| v.is_finite() && (lo - v).max(v - hi) > tol)
+                .collect();
+            assert_eq!(fast.count, outside.len(), "case {case}: {block:?}");
+            let mut finite = FiniteScan::default();
+            finite.push_known(0, block.view(), &cols.extent());
+            let bad = block.iter().filter(|v| !v.is_finite()).count();
+            assert_eq!(finite.count, bad, "case {case}");
+        }
     }
 
     #[test]

@@ -143,16 +143,15 @@ fn note_attrs_only(c: &mut Collector, g: &Group) -> Option<()> {
 }
 
 thread_local! {
-    /// The storage of the last observable's values handed back by [`recycle_values`]: the
+    /// The storage of the last observable's values handed back by [`recycle_storage`]: the
     /// next observable of the same shape reuses it instead of asking the kernel for fresh
     /// zeroed pages (for R × T = 10^7 values, 80 MB faulted in page by page per observable).
     static SPARE: std::cell::Cell<Vec<f64>> = const { std::cell::Cell::new(Vec::new()) };
 }
 
-/// Hands the storage of a kept R × T array back for the next observable read on this thread
-/// (the observables read whole, as `certify` reads them).
-pub fn recycle_values(values: Array2<f64>) {
-    let (v, _) = values.into_raw_vec_and_offset();
+/// Hands back the storage of kept values (of an observable read whole, which its caller or a
+/// sink is done with) for the next observable read on this thread.
+pub fn recycle_storage(v: Vec<f64>) {
     SPARE.with(|s| s.set(v));
 }
 
@@ -165,6 +164,15 @@ fn kept_storage(len: usize) -> Vec<f64> {
     v
 }
 
+/// Storage of exactly `len` values to be overwritten by a read: recycled storage keeps its
+/// old values (nothing is written twice); only storage that has to grow is zeroed, once.
+fn kept_storage_filled(len: usize) -> Vec<f64> {
+    let mut v = SPARE.with(|s| s.take());
+    v.truncate(len);
+    v.resize(len, 0.0);
+    v
+}
+
 /// A scanned R × T float dataset: per-time sums of `f(value)` and, if kept, the array.
 struct Scanned {
     sums: Vec<f64>,
@@ -172,7 +180,8 @@ struct Scanned {
 }
 
 /// Reads an R × T float dataset of shape `(rows, cols)` in row blocks: each block is checked
-/// (`check(r0, block)`), summed per time through `f` in realization order, passed to `sink`
+/// (`check(r0, block, extent)`, the extent taken in the pass that sums the block per time
+/// through `f`, in realization order), passed to `sink`
 /// and kept if `keep`. `None` if a block cannot be read (a problem is recorded).
 #[allow(clippy::too_many_arguments)]
 fn scan_floats(
@@ -183,14 +192,18 @@ fn scan_floats(
     keep: bool,
     sink: &mut dyn ContentSink,
     f: impl Fn(f64) -> f64,
-    check: &mut dyn FnMut(usize, ndarray::ArrayView2<f64>),
+    check: &mut dyn FnMut(usize, ndarray::ArrayView2<f64>, &checks::BlockExtent),
 ) -> Option<Scanned> {
     let mut sums = vec![0.0; cols];
+    let mut extent = checks::ExtentColumns::new(cols);
+    if keep && sink.takes_kept_floats() {
+        return scan_whole(c, ds, path, (rows, cols), f, check, sums, extent);
+    }
     let mut kept = keep.then(|| kept_storage(rows * cols));
     sink.begin(path, ContentKind::F64, &[rows, cols]);
     for (r0, r1) in row_blocks(rows, cols) {
         let block = match f64_rows(ds, r0, r1) {
-            Ok(b) => b,
+            Ok(b) => b.as_standard_layout().into_owned(),
             Err(e) => {
                 sink.end();
                 c.problem(
@@ -203,35 +216,22 @@ fn scan_floats(
                 return None;
             }
         };
-        check(r0, block.view());
-        // Per time, in realization order (the same operations whatever the layout).
-        match block.as_slice() {
-            Some(xs) if cols > 0 => {
-                for row in xs.chunks_exact(cols) {
-                    for (s, &x) in sums.iter_mut().zip(row) {
-                        *s += f(x);
-                    }
+        // One pass per block: the per-time sums, in realization order (the same operations
+        // whatever the layout), and the extent the checks need (finite, smallest, largest).
+        extent.reset();
+        if let Some(xs) = block.as_slice().filter(|_| cols > 0) {
+            for row in xs.chunks_exact(cols) {
+                for (s, &x) in sums.iter_mut().zip(row) {
+                    *s += f(x);
                 }
-            }
-            _ => {
-                for row in block.rows() {
-                    for (s, &x) in sums.iter_mut().zip(row.iter()) {
-                        *s += f(x);
-                    }
-                }
+                extent.push_row(row);
             }
         }
-        if let Some(k) = kept.as_mut() {
-            match block.as_slice() {
-                Some(xs) => k.extend_from_slice(xs),
-                None => k.extend(block.iter().copied()),
-            }
+        check(r0, block.view(), &extent.extent());
+        if let (Some(k), Some(xs)) = (kept.as_mut(), block.as_slice()) {
+            k.extend_from_slice(xs);
         }
-        if block.is_standard_layout() {
-            sink.floats_owned(block.into_raw_vec_and_offset().0);
-        } else {
-            sink.floats(&block.iter().copied().collect::<Vec<_>>());
-        }
+        sink.floats_owned(block.into_raw_vec_and_offset().0);
     }
     sink.end();
     let kept = match kept.map(|v| Array2::from_shape_vec((rows, cols), v)) {
@@ -246,6 +246,63 @@ fn scan_floats(
         }
     };
     Some(Scanned { sums, kept })
+}
+
+/// [`scan_floats`] for a dataset kept whole whose content the sink takes from the kept
+/// array: read in one piece straight into the kept storage (no block copies), then checked
+/// and summed per row block as [`scan_floats`] does, with the same operations in the same
+/// order (so the same sums, to the bit).
+#[allow(clippy::too_many_arguments)]
+fn scan_whole(
+    c: &mut Collector,
+    ds: &Dataset,
+    path: &str,
+    (rows, cols): (usize, usize),
+    f: impl Fn(f64) -> f64,
+    check: &mut dyn FnMut(usize, ndarray::ArrayView2<f64>, &checks::BlockExtent),
+    mut sums: Vec<f64>,
+    mut extent: checks::ExtentColumns,
+) -> Option<Scanned> {
+    let mut values = kept_storage_filled(rows * cols);
+    if let Err(e) = ds.read_into_raw::<f64>(&mut values) {
+        recycle_storage(values);
+        c.problem(
+            path,
+            format!(
+                "cannot be read ({e}); {}",
+                read_fix(&e, "rewrite it as float64")
+            ),
+        );
+        return None;
+    }
+    if cols > 0 {
+        for (r0, r1) in row_blocks(rows, cols) {
+            let xs = &values[r0 * cols..r1 * cols];
+            extent.reset();
+            for row in xs.chunks_exact(cols) {
+                for (s, &x) in sums.iter_mut().zip(row) {
+                    *s += f(x);
+                }
+                extent.push_row(row);
+            }
+            if let Ok(block) = ndarray::ArrayView2::from_shape((r1 - r0, cols), xs) {
+                check(r0, block, &extent.extent());
+            }
+        }
+    }
+    match Array2::from_shape_vec((rows, cols), values) {
+        Ok(a) => Some(Scanned {
+            sums,
+            kept: Some(a),
+        }),
+        Err(e) => {
+            c.problem(
+                path,
+                format!("was read incompletely ({e}); please report this as a bug in quassay"),
+            );
+            None
+        }
+    }
 }
 
 /// Checks the shape of an R × T dataset: 2-D, T columns (against /times), `rows` rows.
@@ -360,10 +417,10 @@ fn read_one(
                 keep,
                 sink,
                 |x| x,
-                &mut |r0, b| {
-                    finite.push(r0, b);
+                &mut |r0, b, extent| {
+                    finite.push_known(r0, b, extent);
                     if let Some(range) = range.as_mut() {
-                        range.push(r0, b);
+                        range.push_known(r0, b, extent);
                     }
                 },
             )?;
@@ -396,9 +453,10 @@ fn read_one(
             keep,
             sink,
             |x| x * x,
-            &mut |r0, b| {
-                finite.push(r0, b);
-                if negative.is_none() {
+            &mut |r0, b, extent| {
+                finite.push_known(r0, b, extent);
+                // No value below the smallest (NaN compares false both here and there).
+                if negative.is_none() && extent.min < 0.0 {
                     negative = b
                         .indexed_iter()
                         .find(|(_, x)| **x < 0.0)

@@ -9,7 +9,8 @@ use crate::certificate::hash::ContentKind;
 use crate::model::{Hamiltonian, Lattice, Observable, Run, Terms, TimeUnit};
 
 /// Receives the numeric content of the observables' R × T datasets (`values`, `shots`,
-/// `stderr`, in that order per observable) in row-major order, as the reader reads it.
+/// `stderr`, in that order per observable) in row-major order, as the reader reads it (except
+/// what [`ContentSink::takes_kept_floats`] leaves to the caller).
 /// `begin` and `end` always come in pairs, even when a read fails half-way.
 pub trait ContentSink {
     /// A dataset starts: its HDF5 path, kind and shape.
@@ -24,6 +25,15 @@ pub trait ContentSink {
     fn ints(&mut self, values: &[i64]);
     /// The dataset is complete.
     fn end(&mut self);
+    /// Whether the sink takes the float datasets that the reader keeps whole (`values` and
+    /// `stderr`, when the caller asked for whole observables) from the kept arrays after the
+    /// reader is done with them, instead of block by block. The reader then reads such a
+    /// dataset straight into the kept array, with no copy, and passes nothing of it here;
+    /// the caller hands the arrays to the sink itself (`certify` does, once the checks of the
+    /// observable are done).
+    fn takes_kept_floats(&self) -> bool {
+        false
+    }
 }
 
 /// A sink that drops the content.
