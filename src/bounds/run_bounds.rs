@@ -14,6 +14,8 @@
 //! The order of operations is fixed (observables in name order, times in order, realizations
 //! in order), so the numbers, and hence the certificate, reproduce to the bit.
 
+use std::collections::HashMap;
+
 use super::confidence::{self, ConfidenceError, ConfidenceSplit, Simultaneity};
 use super::fidelity::{fidelity_bound, FidelityBound};
 use super::global::{
@@ -267,6 +269,10 @@ pub struct RunEvaluator<'a> {
     index: InstanceIndex<'a>,
     /// Exposures kept for reuse, by region shape.
     cache: ExposureCache,
+    /// Light-cone terms already computed, by support, bits of `s_O` and realizations: several
+    /// observables on the same sites with the same spectrum (`Z_5` and `X_5`, say) have the
+    /// same terms, which are then taken, not computed again (the same bits either way).
+    local_terms: HashMap<(Vec<usize>, u64, usize), Vec<LocalTerms>>,
 }
 
 impl<'a> RunEvaluator<'a> {
@@ -313,6 +319,7 @@ impl<'a> RunEvaluator<'a> {
             split,
             sources,
             noise_terms: Vec::new(),
+            local_terms: HashMap::new(),
             graph,
             index,
             cache: ExposureCache::new(EXPOSURE_BUDGET),
@@ -353,7 +360,15 @@ impl<'a> RunEvaluator<'a> {
             p: self.split.p_point,
             p_single: self.split.p_single_point,
         };
-        let local = local_bounds_with(&inputs, &exposure);
+        let key = (support.to_vec(), spread.to_bits(), realizations);
+        let local = match self.local_terms.get(&key) {
+            Some(l) => l.clone(),
+            None => {
+                let l = local_bounds_with(&inputs, &exposure);
+                self.local_terms.insert(key, l.clone());
+                l
+            }
+        };
         let by_term =
             terms.map(|t| term_bounds_cached(&inputs, t, &exposure, &self.index, &mut self.cache));
         let status = LightCone::Computed {
@@ -519,4 +534,57 @@ pub fn evaluate_run(
         })
         .collect();
     Ok(ev.finish(observables))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::path::Path;
+
+    /// Observables on the same sites with the same spread share their light-cone terms (the
+    /// second is taken from the first), and the shared terms are those computed afresh: the
+    /// bounds of each observable do not depend on which of them came first. One with another
+    /// spread on the same sites gets terms of its own. (h5py fixture run and a valid record.)
+    #[test]
+    fn observables_on_the_same_sites_share_light_cone_terms_exactly() {
+        let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference");
+        let run = crate::inputs::run_file::read_run(&root.join("h5py/run_f32_gzip.h5")).unwrap();
+        let record = crate::inputs::noise_record::read_noise_record(
+            &root.join("noise/valid/chain-detuning.json"),
+        )
+        .unwrap();
+        let model = record.expand(&run.lattice, run.time_unit).unwrap();
+        let first = run
+            .observables
+            .iter()
+            .find(|o| !o.support.is_empty() && o.terms.is_none())
+            .unwrap()
+            .clone();
+        let mut same = first.clone();
+        same.name = "same_sites".into();
+        let mut wider = first.clone();
+        wider.name = "wider_spectrum".into();
+        wider.spectrum_max += first.spread();
+        let by_name = |order: Vec<Observable>| {
+            let mut r = run.clone();
+            r.observables = order;
+            let b = evaluate_run(&r, &model, 0.95, Simultaneity::Simultaneous).unwrap();
+            let mut obs = b.observables;
+            obs.sort_by(|a, b| a.name.cmp(&b.name));
+            obs
+        };
+        let a = by_name(vec![first.clone(), same.clone(), wider.clone()]);
+        let b = by_name(vec![wider.clone(), same.clone(), first.clone()]);
+        assert_eq!(a, b);
+        let find = |name: &str| a.iter().find(|o| o.name == name).unwrap();
+        let (f, s, w) = (
+            find(&first.name),
+            find("same_sites"),
+            find("wider_spectrum"),
+        );
+        assert!(f.local.is_some());
+        assert_eq!(f.local, s.local);
+        assert_eq!(f.points, s.points);
+        assert_ne!(f.local, w.local);
+    }
 }
