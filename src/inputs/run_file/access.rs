@@ -392,6 +392,46 @@ pub fn f64_rows(ds: &Dataset, r0: usize, r1: usize) -> hdf5::Result<Array2<f64>>
     ds.read_slice_2d::<f64, _>(s![r0..r1, ..])
 }
 
+/// Rows `[r0, r1)` of a 2-D float dataset of `cols` columns, as float64 (HDF5 converts the
+/// stored type), read into `out`, which must hold exactly `(r1 − r0) · cols` values: the
+/// rows land where they are kept, with no copy (the `hdf5` crate reads a selection only into
+/// storage of its own). The dataset's type was checked to be a float type before
+/// (`float_storage`), so HDF5's conversion to float64 is exact.
+pub fn f64_rows_into(
+    ds: &Dataset,
+    (r0, r1): (usize, usize),
+    cols: usize,
+    out: &mut [f64],
+) -> hdf5::Result<()> {
+    if r1 < r0 || out.len() != (r1 - r0) * cols {
+        return Err(hdf5::Error::from(format!(
+            "internal: {} values of storage for rows {r0}..{r1} of {cols} columns",
+            out.len()
+        )));
+    }
+    let rows: hdf5::Selection = s![r0..r1, ..].try_into()?;
+    let file_space = ds.space()?.select(rows)?;
+    let memory_space = hdf5::Dataspace::try_new([r1 - r0, cols])?;
+    let memory_type = hdf5::Datatype::from_type::<f64>()?;
+    hdf5::sync::sync(|| {
+        // SAFETY: `out` is exactly as long as the memory space selects (checked above), of
+        // the memory type's size (8 bytes per float64), and borrowed mutably for the call;
+        // the identifiers are of objects alive for the whole call; HDF5 calls are serialised
+        // by the crate's lock, which this holds.
+        let status = unsafe {
+            hdf5_sys::h5d::H5Dread(
+                ds.id(),
+                memory_type.id(),
+                memory_space.id(),
+                file_space.id(),
+                hdf5_sys::h5p::H5P_DEFAULT,
+                out.as_mut_ptr().cast(),
+            )
+        };
+        hdf5::h5check(status).map(|_| ())
+    })
+}
+
 /// Rows `[r0, r1)` of a 2-D integer dataset, widened to `i128`; `signed` says how it is
 /// stored (from [`int_storage`]).
 pub fn int_rows(ds: &Dataset, signed: bool, r0: usize, r1: usize) -> hdf5::Result<Array2<i128>> {

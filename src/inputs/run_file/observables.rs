@@ -10,9 +10,9 @@ use hdf5::{Dataset, Group};
 use ndarray::{s, Array2, Ix1, Ix2};
 
 use super::access::{
-    attr_problem, f64_attr, f64_dataset, f64_rows, float_storage, int_dataset, int_rows,
-    int_storage, int_values_attr, int_vec_attr, open_attr, open_dataset, read_fix, row_blocks,
-    string_attr, Collector,
+    attr_problem, f64_attr, f64_dataset, f64_rows, f64_rows_into, float_storage, int_dataset,
+    int_rows, int_storage, int_values_attr, int_vec_attr, open_attr, open_dataset, read_fix,
+    row_blocks, string_attr, Collector,
 };
 use super::checks;
 use super::layout::{note_unknown, open_group};
@@ -249,9 +249,9 @@ fn scan_floats(
 }
 
 /// [`scan_floats`] for a dataset kept whole whose content the sink takes from the kept
-/// array: read in one piece straight into the kept storage (no block copies), then checked
-/// and summed per row block as [`scan_floats`] does, with the same operations in the same
-/// order (so the same sums, to the bit).
+/// array: each row block is read straight into its place in the kept storage (no block
+/// copies), then checked and summed as [`scan_floats`] does while it is still in the cache,
+/// with the same operations in the same order (so the same sums, to the bit).
 #[allow(clippy::too_many_arguments)]
 fn scan_whole(
     c: &mut Collector,
@@ -264,30 +264,31 @@ fn scan_whole(
     mut extent: checks::ExtentColumns,
 ) -> Option<Scanned> {
     let mut values = kept_storage_filled(rows * cols);
-    if let Err(e) = ds.read_into_raw::<f64>(&mut values) {
-        recycle_storage(values);
-        c.problem(
-            path,
-            format!(
-                "cannot be read ({e}); {}",
-                read_fix(&e, "rewrite it as float64")
-            ),
-        );
-        return None;
-    }
-    if cols > 0 {
-        for (r0, r1) in row_blocks(rows, cols) {
-            let xs = &values[r0 * cols..r1 * cols];
-            extent.reset();
-            for row in xs.chunks_exact(cols) {
-                for (s, &x) in sums.iter_mut().zip(row) {
-                    *s += f(x);
-                }
-                extent.push_row(row);
+    for (r0, r1) in row_blocks(rows, cols) {
+        let xs = &mut values[r0 * cols..r1 * cols];
+        if let Err(e) = f64_rows_into(ds, (r0, r1), cols, xs) {
+            recycle_storage(values);
+            c.problem(
+                path,
+                format!(
+                    "cannot be read ({e}); {}",
+                    read_fix(&e, "rewrite it as float64")
+                ),
+            );
+            return None;
+        }
+        if cols == 0 {
+            continue;
+        }
+        extent.reset();
+        for row in xs.chunks_exact(cols) {
+            for (s, &x) in sums.iter_mut().zip(row) {
+                *s += f(x);
             }
-            if let Ok(block) = ndarray::ArrayView2::from_shape((r1 - r0, cols), xs) {
-                check(r0, block, &extent.extent());
-            }
+            extent.push_row(row);
+        }
+        if let Ok(block) = ndarray::ArrayView2::from_shape((r1 - r0, cols), &*xs) {
+            check(r0, block, &extent.extent());
         }
     }
     match Array2::from_shape_vec((rows, cols), values) {
