@@ -5,6 +5,7 @@ mod util;
 mod batch;
 mod bounds_exact;
 mod budget;
+mod certificate_file;
 mod certify;
 mod hostile;
 mod light_cone;

@@ -1,18 +1,20 @@
 //! The whole certificate file: format, digest, body and envelope; sealing and reading.
 //!
-//! `digest` is the SHA-256 (lowercase hex) of the RFC 8785 form of `body`. The file itself is
-//! pretty-printed for people; verification re-canonicalises the body, so whitespace and member
-//! order in the file do not matter, while any change to a value does. The `envelope` records
-//! what does not follow from the inputs (issue time, host, command line) and is not covered.
+//! `digest` is the SHA-256 (lowercase hex) of the RFC 8785 form of `body`. The file holds the
+//! body in exactly that form, on its first line after `{"body":`, so it is serialised once
+//! (the same bytes go to the file and to SHA-256) and anyone can check the digest by hashing
+//! the bytes of the body member. The other top-level members follow one per line, the
+//! envelope pretty-printed. Reading accepts any JSON layout (verification re-canonicalises
+//! the body), so certificates written pretty-printed by earlier versions still read and
+//! verify; a change to any value of the body does not. The `envelope` records what does not
+//! follow from the inputs (issue time, host, command line) and is not covered.
 
 use std::path::Path;
-use std::sync::mpsc::{sync_channel, Receiver};
-use std::sync::OnceLock;
 
 use serde_json::{json, Value};
 
 use super::body::{FORMAT, FORMAT_VERSION};
-use super::canonical::canonical_sha256_hex;
+use super::canonical::{canonical_sha256_hex, write_canonical, CanonicalWriteError};
 use crate::error::{Error, InputKind, Problem, Result};
 
 /// A sealed certificate.
@@ -30,59 +32,74 @@ pub fn body_digest(body: &Value) -> Option<String> {
     canonical_sha256_hex(body).ok()
 }
 
-/// The file's top level, borrowing the body and envelope (serialised in the order of the
-/// names, as serde_json's sorted map writes them, so the text is the same as before).
-#[derive(serde::Serialize)]
-struct FileView<'a, D: serde::Serialize> {
-    body: &'a Value,
-    digest: D,
-    digest_method: &'static str,
-    envelope: &'a Value,
-    format: &'static str,
-    format_version: u64,
-}
-
-/// A digest being computed on another thread, serialised when serde reaches it: after the
-/// body, which is therefore written to the file while it is hashed (the two serialisations of
-/// a large body then take one's time on two cores).
-struct PendingDigest<'a> {
-    rx: &'a Receiver<Option<String>>,
-    got: &'a OnceLock<Option<String>>,
-}
-
-impl serde::Serialize for PendingDigest<'_> {
-    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
-        match self.got.get_or_init(|| self.rx.recv().ok().flatten()) {
-            Some(d) => s.serialize_str(d),
-            None => Err(serde::ser::Error::custom(
-                "the certificate body has no canonical form",
-            )),
-        }
-    }
-}
-
 const DIGEST_METHOD: &str = "SHA-256 of the RFC 8785 (JSON Canonicalization Scheme) form of body";
 
-/// Writes the file's text (pretty-printed, final newline) to the temporary `tmp` standing for
-/// `path`, through a buffer: the text is never held whole.
-fn write_view(view: &impl serde::Serialize, tmp: &Path, path: &Path) -> Result<()> {
+/// The error for a body without a canonical form (a `Value` cannot hold NaN or infinity, so
+/// this is not expected).
+fn non_finite() -> Error {
+    Error::Options("internal: the certificate body holds a non-finite number".into())
+}
+
+/// Writes the file's text to `w`: the top-level members one per line, in the order of their
+/// names; `body` in its RFC 8785 form, serialised once and, if `digest` is `None`, hashed as
+/// it is written; then the digest (the given one, or the one just computed), which is
+/// returned; the envelope pretty-printed; a final newline.
+fn write_document(
+    body: &Value,
+    digest: Option<&str>,
+    envelope: &Value,
+    w: &mut dyn std::io::Write,
+) -> std::result::Result<String, CanonicalWriteError> {
+    w.write_all(b"{\"body\":")?;
+    let computed = write_canonical(body, w, digest.is_none())?;
+    let digest = match (digest, computed) {
+        (Some(d), _) => d.to_owned(),
+        (None, Some(d)) => d,
+        (None, None) => String::new(), // not reached: hashing was asked for
+    };
+    let string = |s: &str| Value::String(s.to_owned()).to_string();
+    write!(
+        w,
+        ",\n\"digest\":{},\n\"digest_method\":{},\n\"envelope\":",
+        string(&digest),
+        string(DIGEST_METHOD)
+    )?;
+    serde_json::to_writer_pretty(&mut *w, envelope).map_err(std::io::Error::other)?;
+    write!(
+        w,
+        ",\n\"format\":{},\n\"format_version\":{FORMAT_VERSION}}}\n",
+        string(FORMAT)
+    )?;
+    Ok(digest)
+}
+
+/// [`write_document`] to the temporary `tmp` standing for `path`, through a buffer: the text
+/// is never held whole.
+fn write_document_file(
+    body: &Value,
+    digest: Option<&str>,
+    envelope: &Value,
+    tmp: &Path,
+    path: &Path,
+) -> Result<String> {
     let fail = |e: std::io::Error| Error::Write {
         path: path.to_path_buf(),
         message: e.to_string(),
     };
     let file = std::fs::File::create(tmp).map_err(fail)?;
     let mut w = std::io::BufWriter::with_capacity(1 << 16, file);
-    serde_json::to_writer_pretty(&mut w, view).map_err(|e| fail(std::io::Error::other(e)))?;
-    std::io::Write::write_all(&mut w, b"\n").map_err(fail)?;
-    std::io::Write::flush(&mut w).map_err(fail)
+    let digest = write_document(body, digest, envelope, &mut w).map_err(|e| match e {
+        CanonicalWriteError::Canonical(_) => non_finite(),
+        CanonicalWriteError::Io(e) => fail(e),
+    })?;
+    std::io::Write::flush(&mut w).map_err(fail)?;
+    Ok(digest)
 }
 
 impl Certificate {
     /// Seals `body` with its digest and the given envelope.
     pub fn seal(body: Value, envelope: Value) -> Result<Certificate> {
-        let digest = body_digest(&body).ok_or_else(|| {
-            Error::Options("internal: the certificate body holds a non-finite number".into())
-        })?;
+        let digest = body_digest(&body).ok_or_else(non_finite)?;
         Ok(Certificate {
             body,
             digest,
@@ -90,39 +107,21 @@ impl Certificate {
         })
     }
 
-    /// Seals `body` and writes the certificate to `path` as [`Certificate::write_to`] does,
-    /// hashing the body on a second thread while it is written: the same file as `seal`
-    /// followed by `write_to`, in about half the time for a large body.
+    /// Seals `body` and writes the certificate to `path` as [`Certificate::write_to`] does:
+    /// the same file as `seal` followed by `write_to`, but the body is serialised once, its
+    /// canonical bytes going to the file and to SHA-256 as they are produced.
     pub fn seal_and_write(
         body: Value,
         envelope: Value,
         path: &Path,
         force: bool,
     ) -> Result<Certificate> {
-        let got = OnceLock::new();
-        let written = std::thread::scope(|scope| {
-            let (tx, rx) = sync_channel(1);
-            let body = &body;
-            scope.spawn(move || {
-                // The writer may have given up (it then reports why); nobody to tell.
-                let _ = tx.send(body_digest(body));
-            });
-            crate::outputs::atomic::write_file(path, force, |tmp| {
-                let view = FileView {
-                    body,
-                    digest: PendingDigest { rx: &rx, got: &got },
-                    digest_method: DIGEST_METHOD,
-                    envelope: &envelope,
-                    format: FORMAT,
-                    format_version: FORMAT_VERSION,
-                };
-                write_view(&view, tmp, path)
-            })
-        });
-        written?;
-        let digest = got.into_inner().flatten().ok_or_else(|| {
-            Error::Options("internal: the certificate body holds a non-finite number".into())
+        let mut digest = None;
+        crate::outputs::atomic::write_file(path, force, |tmp| {
+            digest = Some(write_document_file(&body, None, &envelope, tmp, path)?);
+            Ok(())
         })?;
+        let digest = digest.ok_or_else(non_finite)?;
         Ok(Certificate {
             body,
             digest,
@@ -130,8 +129,7 @@ impl Certificate {
         })
     }
 
-    /// The file's text: pretty-printed JSON with a final newline. The body is serialised in
-    /// place (not copied into a new tree first).
+    /// The file's text (see [`Certificate::write_file_text`]).
     pub fn to_file_text(&self) -> String {
         let mut bytes = Vec::new();
         // Writing into a Vec cannot fail, and every number in a Value is finite.
@@ -139,19 +137,16 @@ impl Certificate {
         String::from_utf8(bytes).unwrap_or_default()
     }
 
-    /// Writes [`Certificate::to_file_text`] to `w` (e.g. a buffered file, so the text is
-    /// never held whole).
+    /// Writes the file's text to `w` (e.g. a buffered file, so the text is never held whole):
+    /// `{"body":` and the body's RFC 8785 form on the first line, then `digest` (as recorded),
+    /// `digest_method`, `envelope` (pretty-printed), `format` and `format_version`, one per
+    /// line, and a final newline.
     pub fn write_file_text(&self, w: &mut impl std::io::Write) -> std::io::Result<()> {
-        let view = FileView {
-            body: &self.body,
-            digest: &self.digest,
-            digest_method: DIGEST_METHOD,
-            envelope: &self.envelope,
-            format: FORMAT,
-            format_version: FORMAT_VERSION,
-        };
-        serde_json::to_writer_pretty(&mut *w, &view).map_err(std::io::Error::other)?;
-        w.write_all(b"\n")
+        match write_document(&self.body, Some(&self.digest), &self.envelope, w) {
+            Ok(_) => Ok(()),
+            Err(CanonicalWriteError::Io(e)) => Err(e),
+            Err(e @ CanonicalWriteError::Canonical(_)) => Err(std::io::Error::other(e)),
+        }
     }
 
     /// Writes the file text to `path` atomically ([`crate::outputs::atomic::write_file`]),
@@ -159,15 +154,7 @@ impl Certificate {
     /// existing `path` is an error and is left untouched.
     pub fn write_to(&self, path: &Path, force: bool) -> Result<()> {
         crate::outputs::atomic::write_file(path, force, |tmp| {
-            let view = FileView {
-                body: &self.body,
-                digest: self.digest.as_str(),
-                digest_method: DIGEST_METHOD,
-                envelope: &self.envelope,
-                format: FORMAT,
-                format_version: FORMAT_VERSION,
-            };
-            write_view(&view, tmp, path)
+            write_document_file(&self.body, Some(&self.digest), &self.envelope, tmp, path).map(drop)
         })
     }
 
@@ -334,37 +321,91 @@ mod tests {
         );
     }
 
-    /// The borrowed view writes the text of the whole document as a JSON value (sorted
-    /// names), byte for byte.
+    /// The file's text is the layout of formats.md's certificate, byte for byte: the body's
+    /// canonical form (exactly the bytes hashed) after `{"body":`, then the other members one
+    /// per line; as JSON it is the whole document. The body's byte span, found by a plain
+    /// byte search, hashes (SHA-256, FIPS 180-4, tested in `hash`) to `digest`.
     #[test]
-    fn the_file_text_is_the_pretty_form_of_the_whole_document() {
+    fn the_file_holds_the_canonical_body_then_the_digest() {
+        use super::super::canonical::to_canonical_json;
+        use super::super::hash::sha256_hex;
         let c = Certificate::seal(
-            json!({"z": [1.5, -0.0, 1e-7], "a": {"k": "v\u{e9}"}}),
+            json!({"z": [1.5, -0.0, 1e-7], "a": {"k": "v\u{e9}\n"}, "o": [{"x": 1}, [2]]}),
             json!({"host": "h", "note": null}),
         )
         .unwrap();
+        let canonical = to_canonical_json(&c.body).unwrap();
+        assert_eq!(
+            canonical,
+            "{\"a\":{\"k\":\"v\u{e9}\\n\"},\"o\":[{\"x\":1},[2]],\"z\":[1.5,0,1e-7]}"
+        );
+        let want = format!(
+            "{{\"body\":{canonical},\n\"digest\":\"{}\",\n\"digest_method\":\"{DIGEST_METHOD}\",\n\
+             \"envelope\":{{\n  \"host\": \"h\",\n  \"note\": null\n}},\n\
+             \"format\":\"{FORMAT}\",\n\"format_version\":{FORMAT_VERSION}}}\n",
+            c.digest
+        );
+        let text = c.to_file_text();
+        assert_eq!(text, want);
+        // As JSON it is the whole document, the body read back in its canonical form (−0 is
+        // written 0, RFC 8785 §3.2.2.3: the one value of this body that changes on reading).
+        let mut body = c.body.clone();
+        body["z"][1] = json!(0);
         let whole = json!({
             "format": FORMAT,
             "format_version": FORMAT_VERSION,
             "digest": c.digest,
             "digest_method": DIGEST_METHOD,
-            "body": c.body,
+            "body": body,
             "envelope": c.envelope,
         });
-        let mut want = serde_json::to_string_pretty(&whole).unwrap();
-        want.push('\n');
-        assert_eq!(c.to_file_text(), want);
-        let back: Value = serde_json::from_str(&c.to_file_text()).unwrap();
-        assert_eq!(back, whole);
+        assert_eq!(serde_json::from_str::<Value>(&text).unwrap(), whole);
+        let start = "{\"body\":".len();
+        let end = text.find(",\n\"digest\"").unwrap();
+        assert_eq!(sha256_hex(&text.as_bytes()[start..end]), c.digest);
         // Written to a file: the same bytes, read back as the same certificate; not over an
         // existing file without force.
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("c.json");
         c.write_to(&path, false).unwrap();
         assert_eq!(std::fs::read_to_string(&path).unwrap(), want);
-        assert_eq!(Certificate::read(&path).unwrap(), c);
+        let read = Certificate::read(&path).unwrap();
+        assert_eq!((&read.body, &read.digest), (&body, &c.digest));
+        assert!(read.digest_matches());
         assert!(c.write_to(&path, false).is_err());
         c.write_to(&path, true).unwrap();
+    }
+
+    /// A certificate in the earlier layout (the whole document pretty-printed by serde_json,
+    /// as quassay wrote it before) still reads as the same certificate, and its digest still
+    /// matches; an altered value in it does not.
+    #[test]
+    fn the_earlier_pretty_printed_layout_still_reads_and_verifies() {
+        let c = Certificate::seal(
+            json!({"z": [1.5, -0.0, 1e-7], "a": {"k": "v\u{e9}"}, "o": [{"x": 1}, {"y": [2]}]}),
+            json!({"host": "h"}),
+        )
+        .unwrap();
+        let old = serde_json::to_string_pretty(&json!({
+            "body": c.body,
+            "digest": c.digest,
+            "digest_method": DIGEST_METHOD,
+            "envelope": c.envelope,
+            "format": FORMAT,
+            "format_version": FORMAT_VERSION,
+        }))
+        .unwrap()
+            + "\n";
+        assert!(old.starts_with("{\n  \"body\": {\n    \"a\": {"), "{old}");
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("old.json");
+        std::fs::write(&path, &old).unwrap();
+        let read = Certificate::read(&path).unwrap();
+        assert_eq!(read, c);
+        assert!(read.digest_matches());
+        let altered = old.replace("\"x\": 1", "\"x\": 2");
+        assert_ne!(altered, old);
+        assert!(!Certificate::parse(&altered).unwrap().digest_matches());
     }
 
     /// The entry points without I/O: bad bytes, bad JSON and a wrong outer structure are
