@@ -26,7 +26,9 @@ use crate::bounds::run_bounds::{ObservableBounds, RunBounds, RunEvaluator, RunGe
 use crate::checks::report::{CheckPlan, ChecksReport, ObservableChecks};
 use crate::error::{Error, InputKind, Result};
 use crate::inputs::noise_record::read_noise_record;
-use crate::inputs::run_file::{open_run, recycle_storage, ContentSink, NoContent, RunOutline};
+use crate::inputs::run_file::{
+    open_run, recycle_storage, ContentSink, NoContent, ObservableRead, RunOutline,
+};
 use crate::model::{NoiseModel, NoiseRecord};
 
 /// Everything a certificate is computed from, read and checked (the run without its R × T
@@ -179,7 +181,7 @@ fn stream_run(
         ),
         _ => None,
     };
-    let mut ev = match evaluator {
+    let ev = match evaluator {
         Some(Ok(ev)) => Some(ev),
         Some(Err(e)) => {
             // Still read the run: its problems take precedence.
@@ -198,60 +200,84 @@ fn stream_run(
         Some(Ok(m)) => Some(m.redrawn),
         _ => None,
     };
-    let mut plan: Option<CheckPlan> = None;
-    let mut checked: Vec<ObservableChecks> = Vec::with_capacity(n_observables);
-    let mut observables: Vec<ObservableBounds> = Vec::with_capacity(n_observables);
-    let mut small = Vec::with_capacity(n_observables);
-    let run = stream.read_observables_whole(sink, |o| {
-        if let (Some(ev), Some(redrawn), Some(whole)) = (ev.as_mut(), redrawn, o.kept.as_ref()) {
-            let outline = &o.outline;
-            let b = ev.observable(
-                &outline.name,
-                outline.spread(),
-                &outline.support,
-                outline.terms.as_ref(),
-                &o.sums,
-            );
-            let plan = plan.get_or_insert_with(|| {
-                CheckPlan::new(
-                    &times,
-                    &sources,
-                    redrawn,
-                    whole.values.nrows(),
-                    n_observables,
-                    n_with_ideal,
-                    options.check_level,
-                )
-            });
-            // V_noise: the smaller of the global (e_i = s_O t) and the light-cone
-            // (e_i = s_O T_i(t)) Efron–Stein sums, at every time where both exist, whichever
-            // statement the interval used: both are upper bounds on the same variance, fixed by
-            // the record before the data are seen, so their minimum is one too and the test
-            // keeps its level (docs/method.md §5). Only T numbers per observable, never the
-            // per-source sensitivities.
-            let local_v = b.local_v_noise();
-            checked.push(plan.observable_with_variance(
-                whole,
-                &b.mean,
-                &b.points,
-                None,
-                local_v.as_deref(),
-            ));
-            observables.push(b);
-        }
-        small.push(small_digests(&o.outline));
-        if let Some(whole) = o.kept {
-            // The kept float datasets go to the hashing thread now (the sink took none of
-            // their blocks), which hashes them while the next observable is read and hands
-            // their storage back for a later one.
-            let at = format!("/observables/{}", whole.name);
-            kept.send(format!("{at}/values"), whole.values);
-            if let Some(stderr) = whole.stderr {
-                kept.send(format!("{at}/stderr"), stderr);
+    // The observables are checked on a thread of their own, in the order they are read,
+    // while this one reads the next: reading (HDF5, one thread) and checking then overlap.
+    let KeptSender { tx: kept_tx, back } = kept;
+    let (to_checks, observables_read) = sync_channel::<ObservableRead>(1);
+    let (times, sources) = (&times, &sources);
+    let check_all = move || {
+        let mut ev = ev;
+        let kept = KeptTx(kept_tx);
+        let mut plan: Option<CheckPlan> = None;
+        let mut checked: Vec<ObservableChecks> = Vec::with_capacity(n_observables);
+        let mut observables: Vec<ObservableBounds> = Vec::with_capacity(n_observables);
+        let mut small = Vec::with_capacity(n_observables);
+        for o in observables_read {
+            if let (Some(ev), Some(redrawn), Some(whole)) = (ev.as_mut(), redrawn, o.kept.as_ref())
+            {
+                let outline = &o.outline;
+                let b = ev.observable(
+                    &outline.name,
+                    outline.spread(),
+                    &outline.support,
+                    outline.terms.as_ref(),
+                    &o.sums,
+                );
+                let plan = plan.get_or_insert_with(|| {
+                    CheckPlan::new(
+                        times,
+                        sources,
+                        redrawn,
+                        whole.values.nrows(),
+                        n_observables,
+                        n_with_ideal,
+                        options.check_level,
+                    )
+                });
+                // V_noise: the smaller of the global (e_i = s_O t) and the light-cone
+                // (e_i = s_O T_i(t)) Efron–Stein sums, at every time where both exist,
+                // whichever statement the interval used: both are upper bounds on the same
+                // variance, fixed by the record before the data are seen, so their minimum
+                // is one too and the test keeps its level (docs/method.md §5). Only T numbers
+                // per observable, never the per-source sensitivities.
+                let local_v = b.local_v_noise();
+                checked.push(plan.observable_with_variance(
+                    whole,
+                    &b.mean,
+                    &b.points,
+                    None,
+                    local_v.as_deref(),
+                ));
+                observables.push(b);
             }
-            kept.recycle();
+            small.push(small_digests(&o.outline));
+            if let Some(whole) = o.kept {
+                // The kept float datasets go to the hashing thread now (the sink took none
+                // of their blocks), which hashes them while the next observable is read and
+                // hands their storage back to the reader for a later one.
+                let at = format!("/observables/{}", whole.name);
+                kept.send(format!("{at}/values"), whole.values);
+                if let Some(stderr) = whole.stderr {
+                    kept.send(format!("{at}/stderr"), stderr);
+                }
+            }
         }
-    })?;
+        (ev, plan, checked, observables, small)
+    };
+    let (run, (ev, plan, checked, observables, small)) = std::thread::scope(|scope| {
+        let checker = scope.spawn(check_all);
+        let run = stream.read_observables_whole(sink, |o| {
+            recycle_from(&back);
+            // A closed channel means the checking thread has gone (a panic, resumed below).
+            let _ = to_checks.send(o);
+        });
+        drop(to_checks);
+        match checker.join() {
+            Ok(out) => (run, out),
+            Err(panic) => std::panic::resume_unwind(panic),
+        }
+    });
+    let run = run?;
     let bounds = ev.map(|ev| ev.finish(observables));
     let checks = plan.map(|p| p.finish(checked));
     let record = noise?;
@@ -307,19 +333,27 @@ enum Message {
     },
     Data(Vec<u8>),
     Floats(Vec<f64>),
-    /// A whole kept float dataset; its storage is handed back once hashed.
-    Kept(Vec<f64>),
+    /// A whole kept float dataset, in one message (it may come between the messages of a
+    /// streamed dataset: another thread sends it); its storage is handed back once hashed.
+    Kept {
+        path: String,
+        shape: Vec<usize>,
+        values: Vec<f64>,
+    },
     End,
 }
 
 /// Sends the float datasets kept whole to the hashing thread (see
-/// [`ContentSink::takes_kept_floats`]) and takes back storage it is done with.
+/// [`ContentSink::takes_kept_floats`]); `back` receives the storage it is done with.
 struct KeptSender {
     tx: SyncSender<Message>,
     back: Receiver<Vec<f64>>,
 }
 
-impl KeptSender {
+/// The sending half of a [`KeptSender`], for the thread that checks the observables.
+struct KeptTx(SyncSender<Message>);
+
+impl KeptTx {
     /// The whole dataset at `path`, as one message.
     fn send(&self, path: String, values: ndarray::Array2<f64>) {
         let shape = values.shape().to_vec();
@@ -329,20 +363,18 @@ impl KeptSender {
             values.iter().copied().collect()
         };
         // A closed channel means the hashing thread has gone; its result says so.
-        let _ = self.tx.send(Message::Begin {
+        let _ = self.0.send(Message::Kept {
             path,
-            kind: ContentKind::F64,
             shape,
+            values,
         });
-        let _ = self.tx.send(Message::Kept(values));
-        let _ = self.tx.send(Message::End);
     }
+}
 
-    /// Storage the hashing thread has finished with, for the next observable's read.
-    fn recycle(&self) {
-        while let Ok(v) = self.back.try_recv() {
-            recycle_storage(v);
-        }
+/// Storage the hashing thread has finished with, for the next observable read on this thread.
+fn recycle_from(back: &Receiver<Vec<f64>>) {
+    while let Ok(v) = back.try_recv() {
+        recycle_storage(v);
     }
 }
 
@@ -432,10 +464,19 @@ fn hash_blocks(
                     h.push_f64(&values);
                 }
             }
-            Message::Kept(values) => {
-                if let Some((_, _, _, h)) = current.as_mut() {
-                    h.push_f64(&values);
-                }
+            Message::Kept {
+                path,
+                shape,
+                values,
+            } => {
+                let mut h = ContentHasher::new(ContentKind::F64, &shape);
+                h.push_f64(&values);
+                out.push(DatasetDigest {
+                    path,
+                    kind: ContentKind::F64,
+                    shape,
+                    sha256: h.finish(),
+                });
                 // Full: the reader has storage enough; this one is dropped.
                 let _ = kept_back.try_send(values);
             }
@@ -479,15 +520,15 @@ mod tests {
         plain.begin("/c", ContentKind::F64, &[400, 1000]);
         plain.floats(&floats);
         plain.end();
+        plain.begin("/d", ContentKind::F64, &[1000]);
+        plain.floats(&floats[..1000]);
+        plain.end();
         let (tx, rx) = sync_channel(IN_FLIGHT);
         let (rtx, rrx) = sync_channel(IN_FLIGHT + 2);
         let (ktx, krx) = sync_channel(KEPT_BACK);
         let (threaded, back) = std::thread::scope(|s| {
             let h = s.spawn(move || hash_blocks(rx, rtx, ktx));
-            let kept = KeptSender {
-                tx: tx.clone(),
-                back: krx,
-            };
+            let kept = KeptTx(tx.clone());
             let mut sink = ThreadedSink {
                 tx,
                 recycle: rrx,
@@ -495,16 +536,21 @@ mod tests {
             };
             assert!(sink.takes_kept_floats());
             feed(&mut sink);
-            // A kept array goes whole, and its storage comes back.
+            // A kept array goes whole, between the messages of a streamed dataset (as the
+            // checking thread sends it), and its storage comes back.
             let whole = ndarray::Array2::from_shape_vec((400, 1000), floats.clone()).unwrap();
+            sink.begin("/d", ContentKind::F64, &[1000]);
+            sink.floats_owned(floats[..500].to_vec());
             kept.send("/c".into(), whole);
+            sink.floats(&floats[500..1000]);
+            sink.end();
             drop(sink);
-            drop(kept.tx);
+            drop(kept);
             let digests = h.join().unwrap();
-            (digests, kept.back.recv().unwrap())
+            (digests, krx.recv().unwrap())
         });
         assert_eq!(threaded, plain.digests);
-        assert_eq!(threaded.len(), 3);
+        assert_eq!(threaded.len(), 4);
         assert_eq!(back, floats);
     }
 

@@ -97,8 +97,8 @@ impl Mapped {
 }
 
 /// Bytes read between two releases of [`Mapped::read_in_pieces`] (a multiple of the page
-/// size): 64 MiB.
-pub const RELEASE_BYTES: usize = 64 << 20;
+/// size): 8 MiB, so a mapped file adds at most that much to the resident memory.
+pub const RELEASE_BYTES: usize = 8 << 20;
 
 impl Drop for Mapped {
     fn drop(&mut self) {
