@@ -7,10 +7,12 @@
 //! straight into the storage of the kept array (no block copies); it is checked and summed for
 //! the bounds row block by row block (about 1 MiB each), then checked against the record, and
 //! then sent whole to a hashing thread for its content digest, which hashes it while the next
-//! observable is read and hands the storage back. A third thread hashes the file's bytes
-//! (from a memory mapping). Nothing of size R × T × K is held: at most three observables'
-//! R × T values. The numbers do not depend on the threads: each digest sees its bytes in
-//! row-major order, and every sum is taken in realization order on one thread.
+//! observable is read and hands the storage back. The bounds and consistency checks of an
+//! observable run on a thread of their own while the next one is read, and a fourth thread
+//! hashes the file's bytes (from a memory mapping). Nothing of size R × T × K is held: at
+//! most five observables' R × T values (every queue holds one). The numbers do not depend on the
+//! threads: each digest sees its bytes in row-major order, every sum is taken in realization
+//! order on one thread, and the observables are bounded and checked in reading order.
 
 use std::collections::HashMap;
 use std::path::Path;
@@ -203,6 +205,9 @@ fn stream_run(
     // The observables are checked on a thread of their own, in the order they are read,
     // while this one reads the next: reading (HDF5, one thread) and checking then overlap.
     let KeptSender { tx: kept_tx, back } = kept;
+    // One observable may wait between the reader and the checking thread, so at most five
+    // observables' values are alive (being read, waiting, being checked, queued for hashing,
+    // being hashed) besides one recycled storage.
     let (to_checks, observables_read) = sync_channel::<ObservableRead>(1);
     let (times, sources) = (&times, &sources);
     let check_all = move || {
@@ -317,13 +322,15 @@ fn assemble_digests(
     Ok(out)
 }
 
-/// Encoded blocks in flight to the hashing thread (each about [`SEND_BYTES`]).
-const IN_FLIGHT: usize = 4;
+/// Messages waiting for the hashing thread: encoded blocks of about [`SEND_BYTES`], or whole
+/// kept datasets (R × T values each). One: the pipeline runs at the pace of its slowest stage
+/// whatever the queues, and each place in this one can hold an observable's values.
+const IN_FLIGHT: usize = 1;
 /// Bytes per message to the hashing thread: 1 MiB.
 const SEND_BYTES: usize = 1 << 20;
 
-/// Kept arrays whose storage the hashing thread may hold at once before handing it back.
-const KEPT_BACK: usize = 2;
+/// Hashed kept arrays whose storage waits to be taken back by the reader.
+const KEPT_BACK: usize = 1;
 
 enum Message {
     Begin {
