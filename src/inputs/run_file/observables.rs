@@ -206,28 +206,13 @@ fn scan_floats(
             Ok(b) => b.as_standard_layout().into_owned(),
             Err(e) => {
                 sink.end();
-                c.problem(
-                    path,
-                    format!(
-                        "cannot be read ({e}); {}",
-                        read_fix(&e, "rewrite it as float64")
-                    ),
-                );
+                unreadable(c, path, &e);
                 return None;
             }
         };
-        // One pass per block: the per-time sums, in realization order (the same operations
-        // whatever the layout), and the extent the checks need (finite, smallest, largest).
-        extent.reset();
-        if let Some(xs) = block.as_slice().filter(|_| cols > 0) {
-            for row in xs.chunks_exact(cols) {
-                for (s, &x) in sums.iter_mut().zip(row) {
-                    *s += f(x);
-                }
-                extent.push_row(row);
-            }
-        }
-        check(r0, block.view(), &extent.extent());
+        let xs = block.as_slice().unwrap_or(&[]);
+        let e = sum_block(xs, cols, &f, &mut sums, &mut extent);
+        check(r0, block.view(), &e);
         if let (Some(k), Some(xs)) = (kept.as_mut(), block.as_slice()) {
             k.extend_from_slice(xs);
         }
@@ -246,6 +231,39 @@ fn scan_floats(
         }
     };
     Some(Scanned { sums, kept })
+}
+
+/// One pass over a block of rows of `cols` values: adds them to the per-time `sums` through
+/// `f`, in realization order (the same operations whichever reader calls it), and takes the
+/// extent the checks need (finite, smallest, largest).
+fn sum_block(
+    xs: &[f64],
+    cols: usize,
+    f: &impl Fn(f64) -> f64,
+    sums: &mut [f64],
+    extent: &mut checks::ExtentColumns,
+) -> checks::BlockExtent {
+    extent.reset();
+    if cols > 0 {
+        for row in xs.chunks_exact(cols) {
+            for (s, &x) in sums.iter_mut().zip(row) {
+                *s += f(x);
+            }
+            extent.push_row(row);
+        }
+    }
+    extent.extent()
+}
+
+/// Records that the float dataset at `path` could not be read.
+fn unreadable(c: &mut Collector, path: &str, e: &hdf5::Error) {
+    c.problem(
+        path,
+        format!(
+            "cannot be read ({e}); {}",
+            read_fix(e, "rewrite it as float64")
+        ),
+    );
 }
 
 /// [`scan_floats`] for a dataset kept whole whose content the sink takes from the kept
@@ -268,27 +286,12 @@ fn scan_whole(
         let xs = &mut values[r0 * cols..r1 * cols];
         if let Err(e) = f64_rows_into(ds, (r0, r1), cols, xs) {
             recycle_storage(values);
-            c.problem(
-                path,
-                format!(
-                    "cannot be read ({e}); {}",
-                    read_fix(&e, "rewrite it as float64")
-                ),
-            );
+            unreadable(c, path, &e);
             return None;
         }
-        if cols == 0 {
-            continue;
-        }
-        extent.reset();
-        for row in xs.chunks_exact(cols) {
-            for (s, &x) in sums.iter_mut().zip(row) {
-                *s += f(x);
-            }
-            extent.push_row(row);
-        }
+        let e = sum_block(xs, cols, &f, &mut sums, &mut extent);
         if let Ok(block) = ndarray::ArrayView2::from_shape((r1 - r0, cols), &*xs) {
-            check(r0, block, &extent.extent());
+            check(r0, block, &e);
         }
     }
     match Array2::from_shape_vec((rows, cols), values) {
