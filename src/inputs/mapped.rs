@@ -141,8 +141,8 @@ mod tests {
     use std::io::Write;
 
     /// A file truncated under its mapping: the read faults, and the handler ends the process
-    /// with exit code 1 and the message (in a forked child, which does nothing but system
-    /// calls between the fork and its exit).
+    /// with exit code 1 and the message on stderr (in a forked child, which does nothing but
+    /// system calls between the fork and its exit; its stderr is a pipe read here).
     #[test]
     fn a_truncated_mapping_exits_with_code_one() {
         let dir = tempfile::tempdir().unwrap();
@@ -156,15 +156,17 @@ mod tests {
             .write(true)
             .open(&path)
             .unwrap();
-        // SAFETY (test): the child only maps, truncates, reads and exits, all system calls.
+        let mut pipe = [0; 2];
+        // SAFETY (test): pipe, fork, dup2, ftruncate, waitpid, read and _exit are system
+        // calls on descriptors of this test.
+        assert_eq!(unsafe { libc::pipe(pipe.as_mut_ptr()) }, 0);
         let pid = unsafe { libc::fork() };
         assert!(pid >= 0);
         if pid == 0 {
+            unsafe { libc::dup2(pipe[1], 2) };
             report_truncation_on_sigbus();
-            let m = Mapped::map(&file, 65_536);
-            let code = match m {
+            let code = match Mapped::map(&file, 65_536) {
                 Some(m) => {
-                    // SAFETY (test): ftruncate on the child's own descriptor.
                     unsafe { libc::ftruncate(file.as_raw_fd(), 0) };
                     // A read past the new end faults: the handler exits with 1.
                     let byte = unsafe { std::ptr::read_volatile(&m.bytes()[40_000]) };
@@ -174,10 +176,16 @@ mod tests {
             };
             unsafe { libc::_exit(code) };
         }
+        unsafe { libc::close(pipe[1]) };
         let mut status = 0;
         assert_eq!(unsafe { libc::waitpid(pid, &mut status, 0) }, pid);
+        let mut said = vec![0u8; 4096];
+        let n = unsafe { libc::read(pipe[0], said.as_mut_ptr().cast(), said.len()) };
+        unsafe { libc::close(pipe[0]) };
+        said.truncate(usize::try_from(n).unwrap_or(0));
         assert!(libc::WIFEXITED(status), "the child did not exit: {status}");
         assert_eq!(libc::WEXITSTATUS(status), 1);
+        assert_eq!(said, TRUNCATED);
     }
 
     /// The mapping holds the file's bytes, and an empty file is not mapped.
