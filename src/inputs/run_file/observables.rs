@@ -4,7 +4,9 @@
 //!
 //! The R × T datasets are read in row blocks (about 1 MiB each): every block is checked,
 //! summed per time (what the bounds need) and passed to a [`ContentSink`], then dropped unless
-//! the caller keeps the whole observable. So memory does not grow with R × T × K.
+//! the caller keeps the whole observable. So memory does not grow with R × T × K. A sink that
+//! takes kept datasets whole ([`ContentSink::takes_kept_floats`], as `certify`'s does) gets
+//! them read straight into the kept storage instead, block by block, with no copy.
 
 use hdf5::{Dataset, Group};
 use ndarray::{s, Array2, Ix1, Ix2};
