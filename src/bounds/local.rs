@@ -626,23 +626,36 @@ mod tests {
         v
     }
 
+    /// The inputs for an observable of spread 2 on `support` at `times`, noise redrawn every
+    /// realization, failure probability `p` for both statements.
+    fn inputs<'a>(
+        graph: &'a WalkGraph<'a>,
+        inst: &'a [Instance],
+        sources: &'a [SourceData],
+        support: &'a [usize],
+        times: &'a [f64],
+        realizations: usize,
+        p: f64,
+    ) -> LocalInputs<'a> {
+        LocalInputs {
+            graph,
+            support,
+            s_o: 2.0,
+            instances: inst,
+            sources,
+            times,
+            redrawn: Redrawn::EveryRealization,
+            realizations,
+            p,
+            p_single: p,
+        }
+    }
+
     fn terms(l: &Lattice, site: usize, times: &[f64], d: f64) -> Vec<LocalTerms> {
         let inst = instances(l, d, d);
         let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
         let graph = WalkGraph::new(l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
-        local_bounds(&LocalInputs {
-            graph: &graph,
-            support: &[site],
-            s_o: 2.0,
-            instances: &inst,
-            sources: &sources,
-            times,
-            redrawn: Redrawn::EveryRealization,
-            realizations: 10,
-            p: 1e-3,
-            p_single: 1e-3,
-        })
-        .unwrap()
+        local_bounds(&inputs(&graph, &inst, &sources, &[site], times, 10, 1e-3)).unwrap()
     }
 
     fn rel(a: f64, b: f64) -> f64 {
@@ -755,18 +768,7 @@ mod tests {
         let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
         let graph = WalkGraph::new(&l, &vec![0.0; l.n_bonds()], 1, &inst).unwrap();
         let support: Vec<usize> = (0..n).collect();
-        let inp = LocalInputs {
-            graph: &graph,
-            support: &support,
-            s_o: 2.0,
-            instances: &inst,
-            sources: &sources,
-            times,
-            redrawn: Redrawn::EveryRealization,
-            realizations: 10,
-            p: 1e-3,
-            p_single: 1e-3,
-        };
+        let inp = inputs(&graph, &inst, &sources, &support, times, 10, 1e-3);
         let terms = Terms {
             supports: (0..n).map(|i| vec![i]).collect(),
             weights: vec![1.0 / n as f64; n],
@@ -814,18 +816,7 @@ mod tests {
             let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
             let graph = WalkGraph::new(&l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
             let support: Vec<usize> = (0..n).collect();
-            let inp = LocalInputs {
-                graph: &graph,
-                support: &support,
-                s_o: 2.0,
-                instances: &inst,
-                sources: &sources,
-                times: &times,
-                redrawn: Redrawn::EveryRealization,
-                realizations: 10,
-                p: 1e-3,
-                p_single: 1e-3,
-            };
+            let inp = inputs(&graph, &inst, &sources, &support, &times, 10, 1e-3);
             let whole = Exposure::new(&graph, &support, &inst, &times).unwrap();
             // Every site of the chain; the middle row of the square lattice (kept short).
             let row: Vec<usize> = if g == Geometry::Square {
@@ -882,18 +873,7 @@ mod tests {
         let graph = WalkGraph::new(&l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
         let times = [0.0, 0.3, 1.0, 2.0];
         let support = [20usize, 21];
-        let inp = LocalInputs {
-            graph: &graph,
-            support: &support,
-            s_o: 2.0,
-            instances: &inst,
-            sources: &sources,
-            times: &times,
-            redrawn: Redrawn::EveryRealization,
-            realizations: 5,
-            p: 1e-3,
-            p_single: 1e-3,
-        };
+        let inp = inputs(&graph, &inst, &sources, &support, &times, 5, 1e-3);
         let whole = Exposure::new(&graph, &support, &inst, &times).unwrap();
         let local = local_bounds_with(&inp, &whole);
         let terms = Terms {
@@ -946,19 +926,7 @@ mod tests {
         let graph = WalkGraph::new(&l, &vec![2.0; l.n_bonds()], 1, &inst).unwrap();
         let times = [0.2, 0.4, 0.7];
         let exposure = Exposure::new(&graph, &[0], &inst, &times).unwrap();
-        let local = local_bounds(&LocalInputs {
-            graph: &graph,
-            support: &[0],
-            s_o: 2.0,
-            instances: &inst,
-            sources: &sources,
-            times: &times,
-            redrawn: Redrawn::EveryRealization,
-            realizations: 1,
-            p: 0.01,
-            p_single: 0.01,
-        })
-        .unwrap();
+        let local = local_bounds(&inputs(&graph, &inst, &sources, &[0], &times, 1, 0.01)).unwrap();
         // f(g) at time t: offsets μ = 0.1 on the site sources are part of H(g).
         let f = |g: &[f64], t: f64| -> f64 {
             let mut hz = vec![0.0; n];
