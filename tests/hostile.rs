@@ -94,6 +94,16 @@ fn mkfifo(path: &Path) {
     assert_eq!(unsafe { libc::mkfifo(c.as_ptr(), 0o600) }, 0);
 }
 
+/// A folder `folder.EXT` and a FIFO `pipe.EXT` made in `dir`, each with the words its refusal
+/// must use ("it is a folder", "it is a FIFO").
+fn folder_and_fifo(dir: &Path, ext: &str) -> [(PathBuf, &'static str); 2] {
+    let folder = dir.join(format!("folder.{ext}"));
+    std::fs::create_dir(&folder).unwrap();
+    let fifo = dir.join(format!("pipe.{ext}"));
+    mkfifo(&fifo);
+    [(folder, "it is a folder"), (fifo, "it is a FIFO")]
+}
+
 /// A fresh folder with the h5py fixture as `run.h5` and a valid noise record as `noise.json`.
 fn inputs() -> tempfile::TempDir {
     let dir = scratch();
@@ -223,16 +233,12 @@ fn every_broken_run_file_is_refused_by_inspect_and_certify_and_nothing_is_writte
 fn a_folder_or_a_fifo_given_as_the_run_is_refused_without_opening_it() {
     let dir = inputs();
     let noise = dir.path().join("noise.json");
-    let folder = dir.path().join("folder.h5");
-    std::fs::create_dir(&folder).unwrap();
-    let fifo = dir.path().join("pipe.h5");
-    mkfifo(&fifo);
-    for (path, what) in [(&folder, "it is a folder"), (&fifo, "it is a FIFO")] {
+    for (path, what) in &folder_and_fifo(dir.path(), "h5") {
         let name = path.file_name().unwrap().to_str().unwrap();
         let want = ["cannot read", name, what, "give the path of a run file"];
         refused(dir.path(), &os(&[&"inspect", path]), 1, &want);
         // certify takes a folder as a folder of runs (batch): this one holds none.
-        let want: &[&str] = if path == &folder {
+        let want: &[&str] = if path.is_dir() {
             &[name, "holds no run file"]
         } else {
             &want
@@ -383,11 +389,7 @@ fn every_broken_noise_record_is_refused_by_certify_and_nothing_is_written() {
         1,
         &["deep.json", "nested more than 128 levels"],
     );
-    let folder = dir.path().join("folder.json");
-    std::fs::create_dir(&folder).unwrap();
-    let fifo = dir.path().join("pipe.json");
-    mkfifo(&fifo);
-    for (path, what) in [(&folder, "it is a folder"), (&fifo, "it is a FIFO")] {
+    for (path, what) in &folder_and_fifo(dir.path(), "json") {
         let name = path.file_name().unwrap().to_str().unwrap();
         let want = ["cannot read", name, what, "give the path of a noise record"];
         refused(dir.path(), &certify_args(&run_path, path), 1, &want);
@@ -400,12 +402,8 @@ fn every_broken_noise_record_is_refused_by_certify_and_nothing_is_written() {
 #[test]
 fn a_folder_or_a_fifo_given_as_the_scenario_is_refused() {
     let dir = scratch();
-    let folder = dir.path().join("folder.json");
-    std::fs::create_dir(&folder).unwrap();
-    let fifo = dir.path().join("pipe.json");
-    mkfifo(&fifo);
     let out = dir.path().join("out");
-    for (path, what) in [(&folder, "it is a folder"), (&fifo, "it is a FIFO")] {
+    for (path, what) in &folder_and_fifo(dir.path(), "json") {
         let name = path.file_name().unwrap().to_str().unwrap();
         let want = ["cannot read", name, what, "give the path of a scenario"];
         refused(dir.path(), &os(&[&"simulate", path, &"-o", &out]), 1, &want);
@@ -542,11 +540,7 @@ fn broken_certificate_files_are_refused_by_verify_review_and_report() {
         }
         std::fs::remove_file(&path).unwrap();
     }
-    let folder = dir.path().join("folder.json");
-    std::fs::create_dir(&folder).unwrap();
-    let fifo = dir.path().join("pipe.json");
-    mkfifo(&fifo);
-    for (path, what) in [(&folder, "it is a folder"), (&fifo, "it is a FIFO")] {
+    for (path, what) in &folder_and_fifo(dir.path(), "json") {
         let name = path.file_name().unwrap().to_str().unwrap();
         for args in commands(path) {
             refused(dir.path(), &args, 1, &["cannot read", name, what]);
