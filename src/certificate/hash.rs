@@ -30,7 +30,7 @@ pub fn sha256_file(path: &Path) -> std::io::Result<(u64, String)> {
     let mut file = std::fs::File::open(path)?;
     let len = file.metadata()?.len();
     let mut hasher = Sha256::new();
-    if let Some(map) = crate::inputs::mapped::Mapped::map(&file, len) {
+    if let Some(map) = crate::inputs::mapped::Mapped::map(&file, len, path) {
         map.read_in_pieces(1 << 20, |piece| hasher.update(piece));
         return Ok((len, hex(&hasher.finalize())));
     }

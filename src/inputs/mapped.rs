@@ -7,18 +7,40 @@
 //!
 //! The one risk of a mapping: if another process truncates the file while it is mapped, a
 //! read of a page past the new end raises `SIGBUS` instead of returning an error. The
-//! `quassay` binary installs [`report_truncation_on_sigbus`], which then prints what happened
-//! and exits with code 1 (a problem with an input); nothing is half-written, because every
-//! output is linked into place only when complete (`outputs::atomic`). Callers that cannot
-//! map a file (empty, a special file, mapping refused) read it instead.
+//! `quassay` binary installs [`report_truncation_on_sigbus`], which then says what happened to
+//! which file and exits with code 1 (a problem with an input); nothing is half-written,
+//! because every output is linked into place only when complete (`outputs::atomic`). Callers
+//! that cannot map a file (empty, a special file, mapping refused) read it instead.
 
+use std::cell::Cell;
 use std::fs::File;
 use std::os::fd::AsRawFd;
+use std::os::unix::ffi::OsStrExt;
+use std::path::Path;
 
 /// A read-only, private mapping of a whole file (at least one byte long).
 pub struct Mapped {
     ptr: *mut libc::c_void,
     len: usize,
+    /// The file's path, for the message if it is truncated while read.
+    name: Vec<u8>,
+}
+
+thread_local! {
+    /// The path of the file this thread is reading through [`Mapped::read_in_pieces`]
+    /// (pointer and length; null when none), for the `SIGBUS` handler, which runs on the
+    /// faulting thread. Constant-initialised and without a destructor, so reading it is a
+    /// plain thread-local load, nothing the handler could not do.
+    static READING: Cell<(*const u8, usize)> = const { Cell::new((std::ptr::null(), 0)) };
+}
+
+/// Clears [`READING`] when the read ends (or unwinds).
+struct Reading;
+
+impl Drop for Reading {
+    fn drop(&mut self) {
+        READING.with(|r| r.set((std::ptr::null(), 0)));
+    }
 }
 
 // SAFETY: the mapping is read-only and owned; its bytes may be read from any thread.
@@ -27,10 +49,11 @@ unsafe impl Send for Mapped {}
 unsafe impl Sync for Mapped {}
 
 impl Mapped {
-    /// Maps `len` bytes of `file` (its size, from `fstat`) read-only, with the kernel told
-    /// the bytes will be read in order. `None` when `len` is zero or does not fit in memory
-    /// addresses, or the kernel refuses; the caller then reads the file instead.
-    pub fn map(file: &File, len: u64) -> Option<Mapped> {
+    /// Maps `len` bytes of `file` (its size, from `fstat`; opened from `path`) read-only,
+    /// with the kernel told the bytes will be read in order. `None` when `len` is zero or does
+    /// not fit in memory addresses, or the kernel refuses; the caller then reads the file
+    /// instead.
+    pub fn map(file: &File, len: u64, path: &Path) -> Option<Mapped> {
         let len = usize::try_from(len).ok().filter(|&l| l > 0)?;
         // SAFETY: a fresh read-only private mapping of an open descriptor; nothing else
         // refers to the returned range, and failure is reported as MAP_FAILED.
@@ -52,7 +75,11 @@ impl Mapped {
         unsafe {
             libc::madvise(ptr, len, libc::MADV_SEQUENTIAL);
         }
-        Some(Mapped { ptr, len })
+        Some(Mapped {
+            ptr,
+            len,
+            name: path.as_os_str().as_bytes().to_vec(),
+        })
     }
 
     /// The mapped bytes.
@@ -75,6 +102,8 @@ impl Mapped {
     /// page size).
     fn read_releasing(&self, piece: usize, release: usize, mut f: impl FnMut(&[u8])) {
         let bytes = self.bytes();
+        READING.with(|r| r.set((self.name.as_ptr(), self.name.len())));
+        let _reading = Reading;
         let mut released = 0;
         for (i, p) in bytes.chunks(piece.max(1)).enumerate() {
             f(p);
@@ -109,21 +138,37 @@ impl Drop for Mapped {
     }
 }
 
-/// The message of [`report_truncation_on_sigbus`].
-const TRUNCATED: &[u8] = b"quassay: error: an input file became shorter while it was being read \
-(another program truncated or rewrote it); no partial output was left. Run the command again \
-once the file is complete.\n";
+/// The message of [`report_truncation_on_sigbus`]: these two pieces around the file's path in
+/// quotes (or "an input file" where none is known).
+const TRUNCATED: [&[u8]; 2] = [
+    b"quassay: error: ",
+    b" became shorter while it was being read (another program truncated or rewrote it); no \
+partial output was left. Run the command again once the file is complete.\n",
+];
 
 /// Installs a `SIGBUS` handler that says an input file was truncated while mapped and exits
 /// with code 1 (formats.md: a problem with an input). For the binary only; call it before any
 /// other thread exists.
 pub fn report_truncation_on_sigbus() {
     extern "C" fn on_sigbus(_: libc::c_int) {
-        // SAFETY: write(2) and _exit(2) are async-signal-safe; the message is static.
-        unsafe {
-            libc::write(2, TRUNCATED.as_ptr().cast(), TRUNCATED.len());
-            libc::_exit(1);
+        let (name, len) = READING.with(|r| r.get());
+        let say = |bytes: &[u8]| {
+            // SAFETY: write(2) is async-signal-safe; `bytes` is valid for its length.
+            unsafe { libc::write(2, bytes.as_ptr().cast(), bytes.len()) };
+        };
+        say(TRUNCATED[0]);
+        if name.is_null() {
+            say(b"an input file");
+        } else {
+            say(b"'");
+            // SAFETY: the path of the `Mapped` being read on this thread, alive while
+            // `read_in_pieces` runs (it is cleared when that ends).
+            say(unsafe { std::slice::from_raw_parts(name, len) });
+            say(b"'");
         }
+        say(TRUNCATED[1]);
+        // SAFETY: _exit(2) is async-signal-safe.
+        unsafe { libc::_exit(1) };
     }
     // SAFETY: a zeroed sigaction with a handler and an empty mask is a valid argument; the
     // handler only calls async-signal-safe functions.
@@ -165,11 +210,14 @@ mod tests {
         if pid == 0 {
             unsafe { libc::dup2(pipe[1], 2) };
             report_truncation_on_sigbus();
-            let code = match Mapped::map(&file, 65_536) {
+            let code = match Mapped::map(&file, 65_536, &path) {
                 Some(m) => {
                     unsafe { libc::ftruncate(file.as_raw_fd(), 0) };
                     // A read past the new end faults: the handler exits with 1.
-                    let byte = unsafe { std::ptr::read_volatile(&m.bytes()[40_000]) };
+                    let mut byte = 0;
+                    m.read_in_pieces(65_536, |p| {
+                        byte = unsafe { std::ptr::read_volatile(&p[40_000]) };
+                    });
                     10 + i32::from(byte)
                 }
                 None => 20,
@@ -185,7 +233,14 @@ mod tests {
         said.truncate(usize::try_from(n).unwrap_or(0));
         assert!(libc::WIFEXITED(status), "the child did not exit: {status}");
         assert_eq!(libc::WEXITSTATUS(status), 1);
-        assert_eq!(said, TRUNCATED);
+        let mut want = TRUNCATED[0].to_vec();
+        want.extend_from_slice(format!("'{}'", path.display()).as_bytes());
+        want.extend_from_slice(TRUNCATED[1]);
+        assert_eq!(
+            String::from_utf8_lossy(&said),
+            String::from_utf8_lossy(&want)
+        );
+        assert!(String::from_utf8_lossy(&said).contains("became shorter"));
     }
 
     /// The mapping holds the file's bytes, and an empty file is not mapped.
@@ -196,7 +251,7 @@ mod tests {
         let bytes: Vec<u8> = (0..300_000u32).map(|i| (i * 7 % 251) as u8).collect();
         File::create(&path).unwrap().write_all(&bytes).unwrap();
         let file = File::open(&path).unwrap();
-        let m = Mapped::map(&file, bytes.len() as u64).unwrap();
+        let m = Mapped::map(&file, bytes.len() as u64, &path).unwrap();
         assert_eq!(m.bytes(), &bytes[..]);
         let mut pieces = Vec::new();
         m.read_in_pieces(65_536, |p| pieces.extend_from_slice(p));
@@ -208,6 +263,6 @@ mod tests {
         assert_eq!(m.bytes(), &bytes[..]);
         let empty = dir.path().join("e.bin");
         File::create(&empty).unwrap();
-        assert!(Mapped::map(&File::open(&empty).unwrap(), 0).is_none());
+        assert!(Mapped::map(&File::open(&empty).unwrap(), 0, &empty).is_none());
     }
 }
