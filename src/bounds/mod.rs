@@ -11,6 +11,8 @@
 //! * [`special`]: the error function and the normal tail, accurate to a few ulps.
 
 pub mod confidence;
+pub mod data_interval;
+pub mod data_statement;
 pub mod family;
 pub mod fidelity;
 pub mod global;

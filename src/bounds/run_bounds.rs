@@ -17,6 +17,7 @@
 use std::collections::HashMap;
 
 use super::confidence::{self, ConfidenceError, ConfidenceSplit, Simultaneity};
+use super::data_statement::{observable_statement, DataInputs, DataStatement};
 use super::fidelity::{fidelity_bound, FidelityBound};
 use super::global::{
     evaluate_point, shot_hoeffding, shot_hoeffding_from_sum, shot_normal_from_sum, PointBounds,
@@ -119,13 +120,47 @@ pub struct ObservableBounds {
     /// The term-by-term statement, when the observable is a sum of local terms and it was
     /// computed.
     pub term_by_term: Option<TermByTerm>,
+    /// The data statement (docs/method.md §6), when asked for; the certified interval is then
+    /// the intersection of [`ObservableBounds::interval`] and its interval.
+    pub data: Option<DataStatement>,
 }
 
 impl ObservableBounds {
-    /// The interval for the ideal-model value at time index `k`.
+    /// The model statement's interval for the ideal-model value at time index `k`.
     pub fn interval(&self, k: usize) -> [f64; 2] {
         let h = self.points[k].half_width;
         [self.mean[k] - h, self.mean[k] + h]
+    }
+
+    /// Computes the data statement (docs/method.md §6) from the observable's `R × T` values.
+    pub fn attach_data(
+        &mut self,
+        values: ndarray::ArrayView2<f64>,
+        spectrum: [f64; 2],
+        redrawn: crate::model::noise::Redrawn,
+        alpha_point: f64,
+        method: super::data_interval::MeanMethod,
+    ) {
+        let model: Vec<[f64; 2]> = (0..self.points.len()).map(|k| self.interval(k)).collect();
+        let inputs = DataInputs {
+            spectrum,
+            points: &self.points,
+            local: self.local.as_deref(),
+            model: &model,
+            redrawn,
+            alpha_point,
+            method,
+        };
+        self.data = Some(observable_statement(values, &inputs));
+    }
+
+    /// The certified interval at time index `k`: the model interval, intersected with the
+    /// data statement's when there is one (`None` when the two are disjoint).
+    pub fn certified(&self, k: usize) -> Option<[f64; 2]> {
+        match &self.data {
+            Some(d) => d.points[k].certified,
+            None => Some(self.interval(k)),
+        }
     }
 
     /// Per time, the light-cone Efron–Stein variance `Σ δ_i² σ_i² e_i²` of one draw (before the
@@ -260,6 +295,9 @@ pub struct RunEvaluator<'a> {
     noise: &'a NoiseModel,
     simultaneity: Simultaneity,
     split: ConfidenceSplit,
+    /// Failure probability of the fidelity statement over all times: the model statement's ε
+    /// unless [`RunEvaluator::set_fidelity_epsilon`] set the user's whole ε.
+    fidelity_epsilon: f64,
     sources: Vec<SourceData>,
     /// Noise terms per time, by the bits of `s_O` (shot terms not yet filled in).
     noise_terms: Vec<(u64, Vec<PointBounds>)>,
@@ -313,6 +351,7 @@ impl<'a> RunEvaluator<'a> {
             Err(_) => InstanceIndex::new(&[], 0),
         };
         Ok(RunEvaluator {
+            fidelity_epsilon: split.epsilon,
             times,
             noise,
             simultaneity,
@@ -480,15 +519,27 @@ impl<'a> RunEvaluator<'a> {
             e_avg_global,
             local,
             term_by_term,
+            data: None,
         }
+    }
+
+    /// The fidelity statement is a claim of its own: when the model statement was given only
+    /// a share of ε (the data statement took the rest), it keeps the user's whole ε.
+    pub fn set_fidelity_epsilon(&mut self, epsilon: f64) {
+        self.fidelity_epsilon = epsilon;
+    }
+
+    /// The confidence split of the model statement.
+    pub fn split(&self) -> &ConfidenceSplit {
+        &self.split
     }
 
     /// All bounds of the run, with the observables' bounds in the run's order.
     pub fn finish(self, observables: Vec<ObservableBounds>) -> RunBounds {
         let split = self.split;
         let fidelity_p = match self.simultaneity {
-            Simultaneity::Simultaneous => split.epsilon / self.times.len().max(1) as f64,
-            Simultaneity::Pointwise => split.epsilon,
+            Simultaneity::Simultaneous => self.fidelity_epsilon / self.times.len().max(1) as f64,
+            Simultaneity::Pointwise => self.fidelity_epsilon,
         };
         let fidelity = self
             .times

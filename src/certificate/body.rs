@@ -11,8 +11,9 @@ use super::certify::Loaded;
 use super::claim;
 use super::record::{DatasetDigest, FileRecord};
 use crate::bounds::confidence::Simultaneity;
+use crate::bounds::data_statement::DataStatement;
 use crate::bounds::family;
-use crate::bounds::run_bounds::RunBounds;
+use crate::bounds::run_bounds::{ObservableBounds, RunBounds};
 use crate::inputs::run_file::RunOutline;
 use crate::model::noise::{ActsOn, Amplitude, Family};
 use crate::model::{NoiseModel, NoiseRecord};
@@ -31,6 +32,9 @@ pub struct CertifyOptions {
     pub simultaneity: Simultaneity,
     /// Level of the consistency checks.
     pub check_level: f64,
+    /// The share `S` of ε given to the data statement (docs/method.md §6); 0 for the model
+    /// statement alone, which gives the body of certificate format 1.0 exactly.
+    pub data_share: f64,
 }
 
 impl Default for CertifyOptions {
@@ -39,6 +43,7 @@ impl Default for CertifyOptions {
             confidence: 0.95,
             simultaneity: Simultaneity::Simultaneous,
             check_level: 0.01,
+            data_share: crate::bounds::data_statement::DEFAULT_DATA_SHARE,
         }
     }
 }
@@ -80,19 +85,23 @@ pub fn build_body(
     let claims: Vec<Value> = run
         .observables
         .iter()
-        .map(|o| {
-            json!({
-                "observable": o.name,
-                "text": claim::claim_sentence(
-                    &o.name,
-                    options.confidence,
-                    options.simultaneity,
-                    inconsistent,
-                ),
-            })
+        .zip(&bounds.observables)
+        .map(|(o, b)| {
+            let mut text = claim::claim_sentence(
+                &o.name,
+                options.confidence,
+                options.simultaneity,
+                inconsistent,
+            );
+            let disjoint = disjoint_times(b);
+            if !disjoint.is_empty() {
+                text.push_str(&claim::disjoint_sentence(&disjoint));
+            }
+            json!({ "observable": o.name, "text": text })
         })
         .collect();
     let split = &bounds.split;
+    let data = bounds.observables.iter().find_map(|b| b.data.as_ref());
     let mut body = json!({
         "format": FORMAT,
         "format_version": FORMAT_VERSION,
@@ -129,6 +138,30 @@ pub fn build_body(
         "noise": noise_json(run, record, model),
         "fidelity": fidelity_json(run, bounds),
     });
+    if let Some(d) = data {
+        // Format 1.1 (docs/certificate.md): the data statement beside the model statement.
+        body["format_minor"] = json!(1);
+        body["options"]["data_share"] = num(options.data_share);
+        let claim = &mut body["claim"];
+        claim["interval"] = json!(
+            "the intersection of the model statement [mean - e_avg - e_shot, mean + e_avg + \
+             e_shot] and the data statement [data_statement.lower, data_statement.upper] at \
+             each recorded time (certified_lower, certified_upper)"
+        );
+        let ps = &mut claim["probability_split"];
+        ps["epsilon"] = num(1.0 - options.confidence);
+        ps["model_statement_total"] = num(split.epsilon);
+        ps["data_statement_total"] = num(crate::bounds::data_statement::shares(
+            options.confidence,
+            options.data_share,
+        )
+        .map_or(f64::NAN, |s| s.data_epsilon));
+        ps["data_statement_per_point"] = num(d.alpha_point);
+        ps["data_share"] = num(options.data_share);
+        if let Value::Array(a) = &mut body["assumptions"] {
+            a.push(json!(claim::DATA_ASSUMPTION));
+        }
+    }
     // The three large members are moved in: `json!` would serialise (copy) them, doubling the
     // body's peak memory for runs with many points.
     if let Value::Object(m) = &mut body {
@@ -322,6 +355,16 @@ fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
                     },
                 });
             }
+            if let Some(d) = &b.data {
+                v["data_statement"] = data_json(d);
+                let certified = |i: usize| -> Vec<Value> {
+                    (0..n)
+                        .map(|k| b.certified(k).map_or(Value::Null, |c| num(c[i])))
+                        .collect()
+                };
+                v["certified_lower"] = Value::Array(certified(0));
+                v["certified_upper"] = Value::Array(certified(1));
+            }
             if let Some(d) = &o.description {
                 v["description"] = json!(d);
             }
@@ -329,6 +372,38 @@ fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
         })
         .collect();
     Value::Array(list)
+}
+
+/// The time indices at which the model and data statements are disjoint.
+fn disjoint_times(b: &ObservableBounds) -> Vec<usize> {
+    match &b.data {
+        Some(d) => d
+            .points
+            .iter()
+            .enumerate()
+            .filter(|(_, p)| p.certified.is_none())
+            .map(|(k, _)| k)
+            .collect(),
+        None => Vec::new(),
+    }
+}
+
+/// An observable's data statement (docs/certificate.md, format 1.1).
+fn data_json(d: &DataStatement) -> Value {
+    let p = &d.points;
+    json!({
+        "method": p.iter().map(|_| d.method.as_str()).collect::<Vec<_>>(),
+        "failure_probability_per_point": num(d.alpha_point),
+        "mean_lower": column(p.iter().map(|x| x.mean_interval[0])),
+        "mean_upper": column(p.iter().map(|x| x.mean_interval[1])),
+        "added": column(p.iter().map(|x| x.added)),
+        "lower": column(p.iter().map(|x| x.interval[0])),
+        "upper": column(p.iter().map(|x| x.interval[1])),
+        "narrower": p
+            .iter()
+            .map(|x| if x.data_narrower { "data" } else { "model" })
+            .collect::<Vec<_>>(),
+    })
 }
 
 fn fidelity_json(run: &RunOutline, bounds: &RunBounds) -> Value {

@@ -23,6 +23,7 @@ use serde_json::Value;
 use super::body::{build_body, CertifyOptions, RecordedInputs};
 use super::hash::{encode_f64, encode_i64, ContentHasher, ContentKind};
 use super::record::{header_digests, small_digests, streamed_paths, DatasetDigest, FileRecord};
+use crate::bounds::data_statement;
 use crate::bounds::global::SourceData;
 use crate::bounds::run_bounds::{ObservableBounds, RunBounds, RunEvaluator, RunGeometry};
 use crate::checks::report::{CheckPlan, ChecksReport, ObservableChecks};
@@ -142,6 +143,12 @@ pub fn compute_body(
     })
 }
 
+/// What the data statement needs on the checking thread.
+#[derive(Debug, Clone, Copy)]
+struct DataPlan {
+    alpha_point: f64,
+}
+
 /// The small digests of each observable (`ideal`, terms), in observable order.
 type SmallDigests = Vec<Vec<DatasetDigest>>;
 
@@ -165,8 +172,12 @@ fn stream_run(
         (Some(h), Ok(record)) => Some(expand(record, h, run_path, noise_path)),
         _ => None,
     };
-    let evaluator = match (&header, &model) {
-        (Some(h), Some(Ok(model))) => Some(
+    // The data statement takes its share of ε before any value is read; the model statement
+    // is evaluated at the rest, the fidelity statement at the whole ε (docs/method.md §6).
+    let shares = data_statement::shares(options.confidence, options.data_share);
+    let evaluator = match (&header, &model, shares) {
+        (_, _, Err(e)) => Some(Err(Error::Options(e.to_string()))),
+        (Some(h), Some(Ok(model)), Ok(shares)) => Some(
             RunEvaluator::new(
                 &h.times,
                 model,
@@ -176,9 +187,13 @@ fn stream_run(
                     time_unit: h.time_unit,
                 },
                 n_observables,
-                options.confidence,
+                shares.model_confidence,
                 options.simultaneity,
             )
+            .map(|mut ev| {
+                ev.set_fidelity_epsilon(shares.epsilon);
+                ev
+            })
             .map_err(|e| Error::Options(e.to_string())),
         ),
         _ => None,
@@ -210,6 +225,17 @@ fn stream_run(
     // being hashed) besides one recycled storage.
     let (to_checks, observables_read) = sync_channel::<ObservableRead>(1);
     let (times, sources) = (&times, &sources);
+    // The data statement's failure probability per point, when it has a share.
+    let data = match data_statement::shares(options.confidence, options.data_share) {
+        Ok(s) if s.data_epsilon > 0.0 => Some(DataPlan {
+            alpha_point: data_statement::alpha_per_point(
+                s.data_epsilon,
+                times.len() * n_observables,
+                options.simultaneity,
+            ),
+        }),
+        _ => None,
+    };
     let check_all = move || {
         let mut ev = ev;
         let kept = KeptTx(kept_tx);
@@ -221,13 +247,26 @@ fn stream_run(
             if let (Some(ev), Some(redrawn), Some(whole)) = (ev.as_mut(), redrawn, o.kept.as_ref())
             {
                 let outline = &o.outline;
-                let b = ev.observable(
+                let mut b = ev.observable(
                     &outline.name,
                     outline.spread(),
                     &outline.support,
                     outline.terms.as_ref(),
                     &o.sums,
                 );
+                if let Some(d) = data {
+                    b.attach_data(
+                        whole.values.view(),
+                        [outline.spectrum_min, outline.spectrum_max],
+                        redrawn,
+                        d.alpha_point,
+                        data_statement::method_for(
+                            whole.values.nrows(),
+                            times.len(),
+                            n_observables,
+                        ),
+                    );
+                }
                 let plan = plan.get_or_insert_with(|| {
                     CheckPlan::new(
                         times,

@@ -53,6 +53,17 @@ pub fn assumptions() -> Vec<&'static str> {
     ]
 }
 
+/// The data statement's own assumption (docs/method.md §6), added when it is part of the claim.
+pub const DATA_ASSUMPTION: &str = "For the data statement: the realizations of each observable are independent evolutions with a common mean (identically prepared and, when the noise is redrawn, with independent draws), the shot averages are unbiased, and the realizations are in the order they were recorded (not reordered after their values were seen).";
+
+/// The sentence added to an observable's claim when the model and data statements are
+/// disjoint at some times: no interval is certified there.
+pub fn disjoint_sentence(time_indices: &[usize]) -> String {
+    format!(
+        " At time indices {time_indices:?} the model statement and the data statement do not          overlap, which happens with probability at most epsilon if the noise record is right;          no interval is certified there."
+    )
+}
+
 /// What the model does not cover, stated in every certificate (bounds.md §1).
 pub fn not_covered() -> Vec<&'static str> {
     vec![

@@ -138,10 +138,20 @@ fn recorded_options(cert_path: &Path, body: &Value) -> Result<CertifyOptions> {
             ))
         }
     };
+    // Absent in certificates made before the data statement existed (and whenever the data
+    // statement was switched off): the model statement alone.
+    let data_share = match o.get("data_share") {
+        None => 0.0,
+        Some(v) => v
+            .as_f64()
+            .filter(|s| (0.0..1.0).contains(s))
+            .ok_or_else(|| bad("/body/options/data_share", "is not a number in [0, 1)"))?,
+    };
     Ok(CertifyOptions {
         confidence,
         simultaneity,
         check_level,
+        data_share,
     })
 }
 

@@ -82,6 +82,11 @@ pub struct CertifyArgs {
     /// Level of the consistency checks of the data against the noise record.
     #[arg(long, default_value_t = 0.01, value_parser = open_unit_interval)]
     pub check_level: f64,
+    /// Share of the failure probability epsilon given to the data statement (the interval
+    /// from the realizations themselves), from 0 (model statement alone) to below 1; the
+    /// model statement gets the rest. See docs/method.md section 6.
+    #[arg(long, default_value_t = 0.5, value_parser = data_share)]
+    pub data_share: f64,
     /// Print the summary as JSON on standard output instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -118,5 +123,19 @@ fn open_unit_interval(text: &str) -> Result<f64, String> {
         Ok(x)
     } else {
         Err(format!("{x} is not strictly between 0 and 1"))
+    }
+}
+
+fn data_share(text: &str) -> Result<f64, String> {
+    let x: f64 = text.parse().map_err(|_| {
+        format!("'{text}' is not a number; give e.g. 0.5, or 0 for the model statement alone")
+    })?;
+    if (0.0..1.0).contains(&x) {
+        Ok(x)
+    } else {
+        Err(format!(
+            "{x} is not in [0, 1): the model statement always keeps a share (its systematic and \
+             bias terms enter the data statement)"
+        ))
     }
 }

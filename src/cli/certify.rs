@@ -61,6 +61,7 @@ pub(super) fn options_of(args: &CertifyArgs) -> CertifyOptions {
             Simultaneity::Simultaneous
         },
         check_level: args.check_level,
+        data_share: args.data_share,
     }
 }
 
@@ -228,6 +229,10 @@ struct Row {
     e_shot: f64,
     e_wc: f64,
     gain: f64,
+    /// With a data statement: the model's half-width and the certified one at the worst
+    /// time (`None` where the two statements are disjoint), and at how many times the data
+    /// statement is the narrower.
+    data: Option<(f64, Option<f64>, usize)>,
 }
 
 fn rows(c: &Computed) -> Vec<Row> {
@@ -252,6 +257,11 @@ fn rows(c: &Computed) -> Vec<Row> {
                 e_shot: p.map_or(0.0, |p| p.e_shot),
                 e_wc,
                 gain: if e_avg > 0.0 { e_wc / e_avg } else { f64::NAN },
+                data: o.data.as_ref().map(|d| {
+                    let certified = o.certified(k).map(|c| 0.5 * (c[1] - c[0]));
+                    let narrower = d.points.iter().filter(|p| p.data_narrower).count();
+                    (p.map_or(0.0, |p| p.half_width), certified, narrower)
+                }),
             }
         })
         .collect()
@@ -301,13 +311,32 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
         c.loaded.model.redrawn.as_str().replace('_', " "),
         c.loaded.model.instances.len(),
     ));
-    s.push_str(&format!(
-        "claim: confidence {} ({}, {} points), {}\n\n",
-        split.confidence,
-        split.simultaneity.as_str(),
-        split.points,
-        c.bounds.statement_summary()
-    ));
+    let data = c.bounds.observables.iter().find_map(|o| o.data.as_ref());
+    match data {
+        None => s.push_str(&format!(
+            "claim: confidence {} ({}, {} points), {}\n\n",
+            split.confidence,
+            split.simultaneity.as_str(),
+            split.points,
+            c.bounds.statement_summary()
+        )),
+        Some(d) => s.push_str(&format!(
+            "claim: confidence {} ({}, {} points): the intersection of the model statement \
+             (failure probability {}, {}) and the data statement (failure probability {} per \
+             point, {} interval)\n\n",
+            show(
+                cert.body["options"]["confidence"]
+                    .as_f64()
+                    .unwrap_or(f64::NAN)
+            ),
+            split.simultaneity.as_str(),
+            split.points,
+            show(split.epsilon),
+            c.bounds.statement_summary(),
+            show(d.alpha_point),
+            d.method.as_str().replace('_', "-"),
+        )),
+    }
     let header = [
         "observable",
         "worst t",
@@ -339,6 +368,34 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
         "\nE_avg: error of the averaged trace from the noise; E_shot: from the finite shots; \
          worst case: no cancellation between sources; gain: worst case / E_avg.\n",
     );
+    if data.is_some() {
+        let mut table: Vec<[String; 5]> = vec![[
+            "observable",
+            "worst t",
+            "model +-",
+            "certified +-",
+            "data narrower",
+        ]
+        .map(String::from)];
+        for r in rows(c) {
+            if let Some((model, certified, narrower)) = r.data {
+                table.push([
+                    r.name,
+                    format!("{} {unit}", show(r.worst_time)),
+                    show(model),
+                    certified.map_or_else(|| "disjoint".into(), show),
+                    format!("{narrower} of {} times", run.n_times()),
+                ]);
+            }
+        }
+        s.push('\n');
+        s.push_str(&aligned(&table, |j| j > 0));
+        s.push_str(
+            "\nmodel +-: half-width of the model statement (E_avg + E_shot); certified +-: of \
+             its intersection with the data statement (the interval from the realizations \
+             themselves, docs/method.md section 6).\n",
+        );
+    }
     let status = verdict_status(cert);
     s.push_str(&format!(
         "consistency of the data with the noise record: {status}\n"
@@ -373,6 +430,9 @@ pub(super) fn summary_json(
                 "e_shot": num(r.e_shot),
                 "e_wc": num(r.e_wc),
                 "gain": num(r.gain),
+                "model_half_width": r.data.map_or(Value::Null, |d| num(d.0)),
+                "certified_half_width": r.data.and_then(|d| d.1).map_or(Value::Null, num),
+                "data_narrower_times": r.data.map_or(Value::Null, |d| json!(d.2)),
             })
         })
         .collect();

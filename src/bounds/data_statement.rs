@@ -1,0 +1,264 @@
+//! The data statement (docs/method.md §6): an interval for the ideal value built from the
+//! realizations themselves, beside the model statement of §3 and §5.
+//!
+//! At one (time, observable) point the `R` recorded values `x_r` lie in the observable's
+//! spectrum `[a, b]`. When the noise is redrawn every realization or every shot they are
+//! independent with the common mean `μ = E f(μ + g)` (the shot averages are unbiased), so a
+//! confidence interval `[L, U]` for a bounded mean ([`super::data_interval`]) covers `μ`, and
+//! `|μ − f_ideal| ≤ min(s_O, E_wc, E_sys + E_bias)` holds with certainty: the ideal value lies
+//! in `[L − E_det, U + E_det]`. When the noise is drawn once, the values share one draw `g`:
+//! `[L, U]` covers `f(g)`, and `|f(g) − f_ideal| ≤ E_avg` on the model statement's own
+//! fluctuation event (already paid for by the model's share of ε), so the added term is the
+//! model's `E_avg`.
+//!
+//! The user's ε is split before any data are read: `ε_d = S·ε` to the data statement (all of
+//! it to the interval from the data), `ε_m = ε − ε_d` to the model statement, which keeps its
+//! own split of §3. The certified interval is the intersection of the two; the union bound
+//! makes it hold with probability at least `1 − ε`.
+//!
+//! Pure: no I/O; the order of operations is fixed (realizations in recorded order), so the
+//! numbers reproduce to the bit.
+
+use ndarray::ArrayView2;
+
+use super::confidence::Simultaneity;
+use super::data_interval::{betting_interval, empirical_bernstein_interval, MeanMethod};
+use super::global::{cap, PointBounds};
+use super::local::LocalTerms;
+use crate::model::noise::Redrawn;
+
+/// The largest number of recorded values (`R·T·K` over the run) for which the betting
+/// interval is computed at every point; above it the closed-form empirical-Bernstein interval
+/// is used at every point (the betting interval needs a root search of `O(R)` steps per point).
+pub const BETTING_BUDGET: usize = 1 << 21;
+
+/// The default share of ε given to the data statement.
+pub const DEFAULT_DATA_SHARE: f64 = 0.5;
+
+/// Why a data share cannot be used.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum ShareError {
+    #[error(
+        "the data share {0} is not in [0, 1): give e.g. 0.5 (half of the failure probability \
+         to the interval from the data) or 0 (the model statement alone)"
+    )]
+    OutOfRange(f64),
+}
+
+/// How ε is divided between the model and the data statements.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Shares {
+    /// The user's `ε = 1 − confidence`.
+    pub epsilon: f64,
+    /// The share `S` given to the data statement.
+    pub share: f64,
+    /// The model statement's confidence level `1 − ε_m`.
+    pub model_confidence: f64,
+    /// `ε_m`, the model statement's failure probability (all points together).
+    pub model_epsilon: f64,
+    /// `ε_d`, the data statement's failure probability (all points together).
+    pub data_epsilon: f64,
+}
+
+/// The largest double below a positive finite `x` (used to round a probability down).
+fn next_below(x: f64) -> f64 {
+    if x > 0.0 && x.is_finite() {
+        f64::from_bits(x.to_bits() - 1)
+    } else {
+        x
+    }
+}
+
+/// Splits `ε = 1 − confidence`: `S·ε` to the data statement, the rest to the model.
+///
+/// `ε_m = 1 − (1 − (1 − S)ε)` is formed exactly from the model's confidence level (Sterbenz:
+/// the level is at least 1/2), and `ε_d = ε − ε_m` is rounded down, so `ε_m + ε_d ≤ ε` holds
+/// for the real numbers, not only for the doubles.
+pub fn shares(confidence: f64, share: f64) -> Result<Shares, ShareError> {
+    if share.is_nan() || !(0.0..1.0).contains(&share) {
+        return Err(ShareError::OutOfRange(share));
+    }
+    let epsilon = 1.0 - confidence;
+    let model_confidence = if share == 0.0 {
+        confidence
+    } else {
+        1.0 - epsilon * (1.0 - share)
+    };
+    let model_epsilon = 1.0 - model_confidence;
+    let data_epsilon = if share == 0.0 {
+        0.0
+    } else {
+        next_below((epsilon - model_epsilon).max(0.0))
+    };
+    Ok(Shares {
+        epsilon,
+        share,
+        model_confidence,
+        model_epsilon,
+        data_epsilon,
+    })
+}
+
+/// Which interval for the mean is used, for the whole run (fixed by its shape, before the
+/// values are read).
+pub fn method_for(realizations: usize, times: usize, observables: usize) -> MeanMethod {
+    let values = realizations
+        .saturating_mul(times)
+        .saturating_mul(observables);
+    if values <= BETTING_BUDGET {
+        MeanMethod::Betting
+    } else {
+        MeanMethod::EmpiricalBernstein
+    }
+}
+
+/// The failure probability per point of the interval from the data: `ε_d/(T·K)` when the
+/// statement is simultaneous (Bonferroni, as for the model statement), else `ε_d`.
+pub fn alpha_per_point(data_epsilon: f64, points: usize, simultaneity: Simultaneity) -> f64 {
+    match simultaneity {
+        Simultaneity::Simultaneous => data_epsilon / points.max(1) as f64,
+        Simultaneity::Pointwise => data_epsilon,
+    }
+}
+
+/// The data statement at one point.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct DataPoint {
+    /// The interval `[L, U]` for the realization mean (or for `f(g)` when the noise is drawn
+    /// once), from the values alone.
+    pub mean_interval: [f64; 2],
+    /// The model term added on both sides: `min(s_O, E_wc, E_sys + E_bias)`, or `E_avg` when
+    /// the noise is drawn once.
+    pub added: f64,
+    /// `[L − added, U + added]`, within the spectrum: the data interval for the ideal value.
+    pub interval: [f64; 2],
+    /// The intersection of the model interval and the data interval; `None` when they are
+    /// disjoint (possible only on the failure event, so evidence against the record).
+    pub certified: Option<[f64; 2]>,
+    /// Whether the data interval is narrower than the model interval.
+    pub data_narrower: bool,
+}
+
+/// The data statement of one observable.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DataStatement {
+    /// The method used at every point of the run.
+    pub method: MeanMethod,
+    /// Failure probability of the interval from the data at each point (after Bonferroni).
+    pub alpha_point: f64,
+    /// Per time.
+    pub points: Vec<DataPoint>,
+}
+
+/// What [`observable_statement`] needs besides the values.
+#[derive(Debug, Clone, Copy)]
+pub struct DataInputs<'a> {
+    /// `[spectrum_min, spectrum_max]`.
+    pub spectrum: [f64; 2],
+    /// The model statement's terms per time (the statement the model interval used).
+    pub points: &'a [PointBounds],
+    /// The light-cone terms per time, when computed (their deterministic part may be smaller).
+    pub local: Option<&'a [LocalTerms]>,
+    /// The model interval per time.
+    pub model: &'a [[f64; 2]],
+    pub redrawn: Redrawn,
+    /// Failure probability per point of the interval from the data.
+    pub alpha_point: f64,
+    pub method: MeanMethod,
+}
+
+/// The largest double above a finite `x` (`x + ulp`).
+fn up(x: f64) -> f64 {
+    x.next_up()
+}
+
+/// The term added to the mean interval at time index `k` (see the module header).
+fn added_term(inp: &DataInputs, k: usize, s_o: f64) -> f64 {
+    let once = matches!(inp.redrawn, Redrawn::Once);
+    let p = &inp.points[k];
+    let model = if once {
+        p.e_avg
+    } else {
+        cap(s_o, p.e_wc, p.e_sys + p.e_bias)
+    };
+    match inp.local.and_then(|l| l.get(k)) {
+        Some(l) => {
+            let local = if once {
+                l.e_avg
+            } else {
+                cap(s_o, l.e_wc, l.e_sys + l.e_bias)
+            };
+            model.min(local)
+        }
+        None => model,
+    }
+}
+
+/// The data statement of one observable from its `R × T` values (realizations in rows).
+pub fn observable_statement(values: ArrayView2<f64>, inp: &DataInputs) -> DataStatement {
+    let [a, b] = inp.spectrum;
+    let s_o = b - a;
+    let mut column = Vec::with_capacity(values.nrows());
+    let points = (0..values.ncols())
+        .map(|k| {
+            column.clear();
+            column.extend(values.column(k).iter().copied());
+            let mean_interval = match inp.method {
+                MeanMethod::EmpiricalBernstein => {
+                    empirical_bernstein_interval(&column, a, b, inp.alpha_point)
+                }
+                _ => betting_interval(&column, a, b, inp.alpha_point),
+            };
+            let added = added_term(inp, k, s_o);
+            // Rounded outward by one ulp each; the ideal value lies in the spectrum.
+            let interval = [
+                (mean_interval[0] - added).next_down().max(a),
+                up(mean_interval[1] + added).min(b),
+            ];
+            let model = inp.model[k];
+            let lo = model[0].max(interval[0]);
+            let hi = model[1].min(interval[1]);
+            DataPoint {
+                mean_interval,
+                added,
+                interval,
+                certified: (lo <= hi).then_some([lo, hi]),
+                data_narrower: interval[1] - interval[0] < model[1] - model[0],
+            }
+        })
+        .collect();
+    DataStatement {
+        method: inp.method,
+        alpha_point: inp.alpha_point,
+        points,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn shares_add_up_to_at_most_epsilon() {
+        for &c in &[0.95, 0.99, 0.5, 0.999999] {
+            for &s in &[0.0, 0.1, 0.5, 0.9] {
+                let sh = shares(c, s).unwrap();
+                assert!(sh.model_epsilon + sh.data_epsilon <= sh.epsilon);
+                assert!((sh.data_epsilon - s * sh.epsilon).abs() <= 1e-15 * sh.epsilon + 1e-17);
+            }
+        }
+        let off = shares(0.95, 0.0).unwrap();
+        assert_eq!(off.model_confidence, 0.95);
+        assert_eq!(off.data_epsilon, 0.0);
+        assert!(shares(0.95, 1.0).is_err());
+        assert!(shares(0.95, -0.1).is_err());
+        assert!(shares(0.95, f64::NAN).is_err());
+    }
+
+    #[test]
+    fn the_method_follows_the_run_size() {
+        assert_eq!(method_for(40, 20, 4), MeanMethod::Betting);
+        assert_eq!(method_for(1000, 1000, 32), MeanMethod::EmpiricalBernstein);
+        assert_eq!(method_for(usize::MAX, 2, 2), MeanMethod::EmpiricalBernstein);
+    }
+}
