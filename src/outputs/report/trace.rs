@@ -112,7 +112,7 @@ pub(crate) fn figure(
     let caption = format!(
         "Averaged trace of {name}: the mean over realizations (solid line, filled circles){ideal}; \
          the {which} [lower, upper] = mean ∓ (E_avg + E_shot) at confidence {conf} \
-         ({statement}; dark band); and the worst-case interval mean ∓ (E_wc + E_shot), clipped \
+         ({statement}; {band}); and the worst-case interval mean ∓ (E_wc + E_shot), clipped \
          to the spectrum [{lo}, {hi}] of the observable (light band; E_wc holds with \
          probability 1, E_shot is the certificate's shot term).{unbounded}{data}",
         name = escape(&o.name),
@@ -126,6 +126,11 @@ pub(crate) fn figure(
         } else {
             "certified interval"
         },
+        band = if o.data.is_some() {
+            "the lightest inner band"
+        } else {
+            "dark band"
+        },
         conf = d.confidence,
         statement = escape(&d.statement),
         lo = o.spectrum[0],
@@ -134,7 +139,7 @@ pub(crate) fn figure(
             None => String::new(),
             Some(b) => format!(
                 " The certified interval is the intersection (darkest band) of the model \
-                 statement above (mean ∓ (E_avg + E_shot), lightest inner band) and the data \
+                 statement and the data \
                  statement (middle band): a {} interval for the mean of the realizations from \
                  the values themselves, widened by the model's systematic and bias terms. \
                  Where the two do not overlap nothing is certified (a gap in the darkest band).",
