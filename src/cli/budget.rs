@@ -417,6 +417,9 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
                 "averaged": "e_avg + e_shot (global bounds, bounds.md §3)",
                 "single": "e_one, one noisy evolution (global bounds, bounds.md §3)",
             },
+            "statement": "model statement only, at the whole confidence level; a certificate \
+                          also intersects it with the data statement (docs/method.md section \
+                          6), which needs the data",
             "bisection_relative_tolerance": planning::REL_TOL,
             "scale": by(&scale),
             "time_limit": by(&time),
@@ -586,6 +589,13 @@ fn render_text(
          sources); worst case: no cancellation; gain: stochastic / worst case. \"none\": the \
          target is below the shot term; \"unlimited\": the target is at least the spread of the \
          observable (or the search limit was reached).\n",
+    );
+    s.push_str(
+        "planning uses the model statement alone, at the whole confidence level: a certificate \
+         also intersects it with the data statement (an interval from the recorded \
+         realizations, docs/method.md section 6), which cannot be planned before the data exist \
+         and can only narrow the certified interval, though the model statement then gets only \
+         its share of the failure probability (certify --data-share).\n",
     );
     s
 }
