@@ -20,6 +20,7 @@
 //! numbers reproduce to the bit.
 
 use ndarray::ArrayView2;
+use rayon::prelude::*;
 
 use super::confidence::Simultaneity;
 use super::data_interval::{betting_interval, empirical_bernstein_interval, MeanMethod};
@@ -198,11 +199,13 @@ fn added_term(inp: &DataInputs, k: usize, s_o: f64) -> f64 {
 pub fn observable_statement(values: ArrayView2<f64>, inp: &DataInputs) -> DataStatement {
     let [a, b] = inp.spectrum;
     let s_o = b - a;
-    let mut column = Vec::with_capacity(values.nrows());
+    // The points are independent of each other: computed in parallel, each from its own
+    // column in realization order, and collected in time order (the same bits on any number
+    // of threads).
     let points = (0..values.ncols())
+        .into_par_iter()
         .map(|k| {
-            column.clear();
-            column.extend(values.column(k).iter().copied());
+            let column: Vec<f64> = values.column(k).iter().copied().collect();
             let mean_interval = match inp.method {
                 MeanMethod::EmpiricalBernstein => {
                     empirical_bernstein_interval(&column, a, b, inp.alpha_point)
