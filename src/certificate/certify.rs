@@ -609,7 +609,11 @@ mod tests {
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference");
         let run_path = root.join("h5py/run_f32_gzip.h5");
         let noise_path = root.join("noise/valid/chain-detuning.json");
-        let options = CertifyOptions::default();
+        // The model statement alone, as `evaluate_run` computes it.
+        let options = CertifyOptions {
+            data_share: 0.0,
+            ..CertifyOptions::default()
+        };
         let c = compute_body(&run_path, &noise_path, "r".into(), "n".into(), &options).unwrap();
         let run = crate::inputs::run_file::read_run(&run_path).unwrap();
         let expected = super::super::record::dataset_digests(&run);

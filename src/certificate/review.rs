@@ -344,7 +344,10 @@ pub fn check_claim(
                     p.half_width
                 )
             } else {
-                format!("E_avg + E_shot = {} + {} = {}", p.e_avg, p.e_shot, p.half_width)
+                format!(
+                    "E_avg + E_shot = {} + {} = {}",
+                    p.e_avg, p.e_shot, p.half_width
+                )
             },
             claimed
         )

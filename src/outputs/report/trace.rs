@@ -74,7 +74,14 @@ pub(crate) fn figure(
                     &format!("certified interval, confidence {}", d.confidence),
                 )?,
                 Some(b) => {
-                    plot::draw_band(c, &d.times, &o.lower, &o.upper, MODEL_GREY, "model statement")?;
+                    plot::draw_band(
+                        c,
+                        &d.times,
+                        &o.lower,
+                        &o.upper,
+                        MODEL_GREY,
+                        "model statement",
+                    )?;
                     plot::draw_band(
                         c,
                         &d.times,
