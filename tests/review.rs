@@ -2,7 +2,7 @@
 //! the bundled invented example `example_runs/chain12` (an exact simulation, see its
 //! scenario.json). The known answers are the certificate's own half-widths
 //! `e_avg + e_shot`: a claim just above the largest is supported (exit 0), one just below is
-//! not (exit 3), as bounds.md §3 "The claim" defines the interval.
+//! not (exit 3), as docs/method.md §3, "The claim and the confidence split", defines the interval.
 
 use std::path::{Path, PathBuf};
 

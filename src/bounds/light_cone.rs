@@ -1,4 +1,4 @@
-//! Lieb–Robinson light cones (bounds.md §5, docs/method.md §5): walk sums over the run's bonds
+//! Lieb–Robinson light cones (docs/method.md §5): walk sums over the run's bonds
 //! and the exposure time `T_i(t)` of every noise source to an observable's support.
 //!
 //! With `J̃_e` the norm bound of bond `e` for every noise draw (the target term plus the largest

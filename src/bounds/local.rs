@@ -1,4 +1,4 @@
-//! The light-cone versions of the §3 terms for one observable over all times (bounds.md §5,
+//! The light-cone versions of the §3 terms for one observable over all times (docs/method.md §5,
 //! docs/method.md §5).
 //!
 //! Each source gets the sensitivity `e_i = s_O·T_i(t)` (at most the global `s_O·t`), and the
@@ -61,7 +61,7 @@ pub struct LocalTerms {
     pub route_one: Option<FluctuationRoute>,
     pub e_one: f64,
     pub e_avg: f64,
-    /// `Σ_i δ_i² σ_i² e_i²`: the Efron–Stein noise variance of one draw (bounds.md §6, before
+    /// `Σ_i δ_i² σ_i² e_i²`: the Efron–Stein noise variance of one draw (docs/checks.md, before
     /// the realization rule; an upper bound).
     pub v_noise: f64,
 }
@@ -258,7 +258,7 @@ fn classes(sources: &[SourceData]) -> (Vec<usize>, Vec<usize>) {
     (class_of, reps)
 }
 
-/// The term-by-term statement of an observable `O = Σ_a w_a O_a` (bounds.md §5, "Observables
+/// The term-by-term statement of an observable `O = Σ_a w_a O_a` (docs/method.md §5, "Sums
 /// that are sums of local terms"): per time, the terms and how many sources (with `δ_i > 0`)
 /// took each form of the sensitivity.
 #[derive(Debug, Clone, PartialEq)]
@@ -722,7 +722,7 @@ mod tests {
     }
 
     /// Inside the system the fluctuation term grows like t^(d/2+1) and the worst case like
-    /// t^(d+1) (bounds.md §5); fitted over a window where the light cone is far from the edge.
+    /// t^(d+1) (docs/method.md §5); fitted over a window where the light cone is far from the edge.
     #[test]
     fn local_terms_scale_with_the_dimension() {
         let cases = [
@@ -757,7 +757,7 @@ mod tests {
 
     /// `(1/n) Σ_i Y_i` on `n` uncoupled sites (bond norms 0), one uniform Z source per site:
     /// term by term `E_i = (2/n)·t`, so the fluctuation `∝ √(Σ E_i²)` falls like `n^{-1/2}`;
-    /// the whole operator has `E_i = 2t` and grows like `n^{1/2}` (bounds.md §5). Fitted over
+    /// the whole operator has `E_i = 2t` and grows like `n^{1/2}` (docs/method.md §5). Fitted over
     /// n = 10 … 10^4.
     fn averaged(n: usize, times: &[f64]) -> (Vec<LocalTerms>, TermByTerm) {
         let l = Lattice::regular(Geometry::Chain, &[n], Boundary::Open).unwrap();

@@ -1,5 +1,5 @@
 //! Every bound of a run at once: each observable at each recorded time, and the fidelity bound
-//! at each time (bounds.md §3–§5). Pure: it takes the checked models and returns numbers.
+//! at each time (docs/method.md §3–§5). Pure: it takes the checked models and returns numbers.
 //!
 //! Per observable and time the point reports one *statement*: the global one (§3), or the
 //! light-cone one (§5) when it is smaller ([`super::local::combine`]). The walk graph is built

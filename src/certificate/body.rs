@@ -1,5 +1,5 @@
 //! The certificate's body: everything that follows from the inputs and the options, and
-//! nothing else (formats.md, "Certificate"). Its RFC 8785 form is what the digest covers.
+//! nothing else (docs/certificate.md). Its RFC 8785 form is what the digest covers.
 //!
 //! Numbers that are infinite (a worst case with an unbounded family, say) have no JSON form;
 //! they are written as the string `"unbounded"`. Per-time quantities are stored as columns

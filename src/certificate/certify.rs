@@ -78,7 +78,7 @@ fn expand(
 pub struct Computed {
     pub loaded: Loaded,
     pub bounds: RunBounds,
-    /// The consistency checks of the data against the record (bounds.md §6).
+    /// The consistency checks of the data against the record (docs/checks.md).
     pub checks: ChecksReport,
     pub body: Value,
 }

@@ -321,7 +321,7 @@ mod tests {
         );
     }
 
-    /// The file's text is the layout of formats.md's certificate, byte for byte: the body's
+    /// The file's text is the layout of docs/certificate.md, "The file", byte for byte: the body's
     /// canonical form (exactly the bytes hashed) after `{"body":`, then the other members one
     /// per line; as JSON it is the whole document. The body's byte span, found by a plain
     /// byte search, hashes (SHA-256, FIPS 180-4, tested in `hash`) to `digest`.

@@ -1,4 +1,4 @@
-//! The whole consistency check of a run against its noise record (bounds.md §6), its verdict
+//! The whole consistency check of a run against its noise record (docs/checks.md), its verdict
 //! and its JSON.
 //!
 //! Tests, per observable and recorded time:
@@ -139,7 +139,7 @@ pub struct PointCheck {
     pub ideal: Option<IdealTest>,
 }
 
-/// The implied noise scale of one observable (bounds.md §6).
+/// The implied noise scale of one observable (docs/checks.md).
 #[derive(Debug, Clone, PartialEq)]
 pub struct ImpliedScale {
     /// The largest over times of the smallest λ ≥ 0 with `λ² V_noise ≥ LCL(s²) − V_shot`,
@@ -219,7 +219,7 @@ pub fn check_run(
 pub type Sensitivities = [Vec<Vec<f64>>];
 
 /// [`check_run`] with per-source sensitivities `e_i(t)` for `V_noise` (the light-cone
-/// version, bounds.md §5); `None` means the global `s_O·t`. The ideal-reference p-values use
+/// version, docs/method.md §5); `None` means the global `s_O·t`. The ideal-reference p-values use
 /// the global bounds either way (valid, possibly conservative).
 pub fn check_run_with_sensitivities(
     run: &Run,
@@ -1010,7 +1010,7 @@ mod tests {
         }
     }
 
-    /// An exact simulation of the one-spin Ramsey scenario of bounds.md (H = 0, |+⟩, one
+    /// An exact simulation of the one-spin Ramsey scenario of docs/method.md §3 (H = 0, |+⟩, one
     /// source δ g Z with g uniform on [−1, 1] redrawn every realization): ⟨X⟩ = cos(2δgt),
     /// ⟨Y⟩ = sin(2δgt) in closed form, and each shot is ±1 with P(+1) = (1 + ⟨O⟩)/2.
     fn simulate(delta_true: f64, r: usize, shots: u64, seed: u64) -> Run {
