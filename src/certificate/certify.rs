@@ -33,14 +33,7 @@ use crate::inputs::run_file::{
 };
 use crate::model::{NoiseModel, NoiseRecord};
 
-/// Everything a certificate is computed from, read and checked (the run without its R × T
-/// datasets, which the bounds and digests consumed as they streamed by).
-#[derive(Debug, Clone)]
-pub struct Loaded {
-    pub run: RunOutline,
-    pub record: NoiseRecord,
-    pub model: NoiseModel,
-}
+pub use super::body::Loaded;
 
 /// Reads and checks the run and the noise record, and expands the record against the run.
 pub fn load_inputs(run_path: &Path, noise_path: &Path) -> Result<Loaded> {

@@ -17,6 +17,9 @@ use super::body::{FORMAT, FORMAT_VERSION};
 use super::canonical::{canonical_sha256_hex, write_canonical, CanonicalWriteError};
 use crate::error::{Error, InputKind, Problem, Result};
 
+/// What a certificate is, for messages about a path that is not one.
+pub const CERTIFICATE: &str = "a certificate (JSON, format quassay-certificate v1)";
+
 /// A sealed certificate.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Certificate {
@@ -161,7 +164,7 @@ impl Certificate {
     /// Reads a certificate file; problems of its outer structure are input errors.
     pub fn read(path: &Path) -> Result<Certificate> {
         // A regular file only (a FIFO would block the read forever).
-        let bytes = crate::inputs::regular::read_regular(path, super::verify::CERTIFICATE)?;
+        let bytes = crate::inputs::regular::read_regular(path, CERTIFICATE)?;
         Certificate::from_bytes(&bytes).map_err(|problems| Error::Input {
             kind: InputKind::Certificate,
             file: path.to_path_buf(),

@@ -24,8 +24,7 @@ use super::record::{resolve_recorded, FileRecord};
 use crate::bounds::confidence::Simultaneity;
 use crate::error::{Error, InputKind, Result};
 
-/// What a certificate is, for messages about a path that is not one.
-pub const CERTIFICATE: &str = "a certificate (JSON, format quassay-certificate v1)";
+pub use super::document::CERTIFICATE;
 const INPUT_FILE: &str = "the archived input the certificate records (a regular file)";
 
 /// The result of a verification.

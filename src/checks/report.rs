@@ -32,9 +32,9 @@ use super::maurer_pontil;
 use super::variance::{bhatia_davis_max, hoeffding_mean_radius, noise_variance};
 use crate::bounds::global::{bias_ln_sum, PointBounds, SourceData};
 use crate::bounds::run_bounds::RunBounds;
-use crate::certificate::body::num;
 use crate::model::noise::Redrawn;
 use crate::model::{NoiseModel, Observable, Run};
+use crate::numbers::num;
 
 /// Share of the smallest Holm threshold `level/m` given to the interval for the mean.
 const MEAN_INTERVAL_SHARE: f64 = 0.1;

@@ -67,7 +67,11 @@ pub fn main() -> ExitCode {
     };
     let result = match &cli.command {
         Command::Inspect(a) => inspect::run(a),
-        Command::Certify(a) => certify::run(a),
+        // One run file as before, or a batch (several runs, or folders of runs).
+        Command::Certify(a) => match a.runs.as_slice() {
+            [one] if !one.is_dir() => certify::run_single(a, one),
+            _ => batch::run(a),
+        },
         Command::Verify(a) => verify::run(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Review(a) => review::run(a),

@@ -13,15 +13,14 @@ use ndarray::{s, Array2, Ix1, Ix2};
 
 use super::access::{
     attr_problem, f64_attr, f64_dataset, f64_rows, f64_rows_into, float_storage, int_dataset,
-    int_rows, int_storage, int_values_attr, int_vec_attr, open_attr, open_dataset, read_fix,
-    row_blocks, string_attr, Collector,
+    int_rows, int_storage, int_values_attr, int_vec_attr, note_unknown, open_attr, open_dataset,
+    open_group, read_fix, row_blocks, string_attr, Collector,
 };
 use super::checks;
-use super::layout::{note_unknown, open_group};
 use super::stream::{ContentSink, ObservableOutline, ObservableRead};
 use super::{ObservableSummary, RunSummary, ShotsSummary};
-use crate::bounds::run_bounds::{ObservableSums, ShotSums};
-use crate::certificate::hash::ContentKind;
+use crate::inputs::digest::ContentKind;
+use crate::model::sums::{ObservableSums, ShotSums};
 use crate::model::{Observable, Shots, Terms};
 
 const OBS_ATTRS: &[&str] = &[
