@@ -109,7 +109,7 @@ pub(super) fn certify_one(job: &Job, progress: &Progress) -> crate::Result<Certi
     let mut computed = computed?;
     // The body moves into the certificate (no copy: it can hold millions of numbers) and is
     // streamed to the file while its digest is computed on another thread.
-    let cert = Certificate::seal_and_write(
+    let cert = crate::outputs::certificate_file::seal_and_write(
         std::mem::take(&mut computed.body),
         envelope_now(),
         job.output,
