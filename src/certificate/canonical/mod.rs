@@ -26,12 +26,7 @@
 mod number;
 mod writer;
 
-use writer::non_finite_error;
-use writer::write_value;
-use writer::Out;
-use writer::Sink;
-use writer::Stop;
-use writer::FLUSH_BYTES;
+use writer::{non_finite_error, write_value, Out, Sink, Stop, FLUSH_BYTES};
 
 use serde_json::Value;
 use sha2::{Digest, Sha256};
