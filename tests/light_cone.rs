@@ -1,7 +1,7 @@
-//! Integration tests of the light-cone statement in certificates (docs/method.md §5,
-//! docs/method.md §5): simulated runs (invented scenarios) certified by the binary, checked
-//! against the exact simulation that made them (`truth.h5`: the ideal trace and the exact
-//! expectation of every realization's noise draw), against the schema, and re-verified.
+//! Integration tests of the light-cone statement in certificates (docs/method.md §5):
+//! simulated runs (invented scenarios) certified by the binary, checked against the exact
+//! simulation that made them (`truth.h5`: the ideal trace and the exact expectation of every
+//! realization's noise draw), against the schema, and re-verified.
 //!
 //! The chain is long enough, and its couplings weak enough, that the Lieb–Robinson light cone
 //! of the middle site is much smaller than the chain at the early times: there the light-cone

@@ -1,9 +1,5 @@
 //! Unit tests of the light cone: walk sums, regions, tails, exposures and their reuse.
 
-use super::cache::*;
-use super::exposure::*;
-use super::region::*;
-use super::walks::*;
 use super::*;
 use crate::model::lattice::{Boundary, Geometry};
 

@@ -1,10 +1,6 @@
 //! Unit tests of canonical JSON: RFC 8785's examples, ties, layouts, escapes and streaming.
 
-#[allow(unused_imports)]
-use super::number::*;
 use super::number::{layout, may_tie, tie_partner};
-#[allow(unused_imports)]
-use super::writer::*;
 use super::writer::{write_value, Out, FLUSH_BYTES};
 use super::*;
 

@@ -1,12 +1,6 @@
 //! Unit tests of the consistency check: exact simulations of the one-spin Ramsey scenario of
 //! docs/method.md §3 against the record that made them, and against a wrong one.
 
-#[allow(unused_imports)]
-use super::json::*;
-#[allow(unused_imports)]
-use super::plan::*;
-#[allow(unused_imports)]
-use super::steps::*;
 use super::*;
 use crate::bounds::confidence::Simultaneity;
 use crate::bounds::run_bounds::evaluate_run;

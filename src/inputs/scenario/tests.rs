@@ -1,15 +1,5 @@
 //! Unit tests of the scenario reader.
 
-#[allow(unused_imports)]
-use super::noise::*;
-#[allow(unused_imports)]
-use super::observables::*;
-#[allow(unused_imports)]
-use super::read::*;
-#[allow(unused_imports)]
-use super::reader::*;
-#[allow(unused_imports)]
-use super::system::*;
 use super::*;
 use crate::model::noise::Amplitude;
 use serde_json::Value;
