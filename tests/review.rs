@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 
 use serde_json::Value;
 
-use crate::util::{quassay, repo, scratch};
+use crate::util::{body, quassay, repo, scratch};
 
 /// Copies the example to `dir` and certifies it; returns the certificate's path.
 fn certificate(dir: &Path) -> PathBuf {
@@ -23,11 +23,6 @@ fn certificate(dir: &Path) -> PathBuf {
         .assert()
         .success();
     dir.join("run.cert.json")
-}
-
-fn body(cert: &Path) -> Value {
-    let v: Value = serde_json::from_str(&std::fs::read_to_string(cert).unwrap()).unwrap();
-    v["body"].clone()
 }
 
 /// The largest half-width over the observables named (all if `None`) and times ≤ `until`.

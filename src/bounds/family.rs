@@ -111,12 +111,9 @@ pub fn phi_minus_one(f: &Family, y: f64) -> f64 {
             std,
             symmetric,
         } => {
-            let b = lower.abs().max(upper.abs());
-            if b == 0.0 || std == 0.0 {
+            let Some((a, z)) = bounded_scale(lower, upper, std, y) else {
                 return 0.0;
-            }
-            let a = (std / b) * (std / b);
-            let z = y * b;
+            };
             if symmetric {
                 a * cosh_minus_one(z)
             } else {
@@ -156,12 +153,9 @@ pub fn ln_phi(f: &Family, y: f64) -> f64 {
             std,
             symmetric,
         } => {
-            let b = lower.abs().max(upper.abs());
-            if b == 0.0 || std == 0.0 {
+            let Some((a, z)) = bounded_scale(lower, upper, std, y) else {
                 return 0.0;
-            }
-            let a = (std / b) * (std / b);
-            let z = y * b;
+            };
             if z < 600.0 {
                 return phi_minus_one(f, y).ln_1p();
             }
@@ -177,6 +171,16 @@ pub fn ln_phi(f: &Family, y: f64) -> f64 {
             }
         }
     }
+}
+
+/// The bounded family's `a = σ²/b²` and `z = y·b` (`b = max(|lower|, |upper|)`), shared by
+/// [`phi_minus_one`] and [`ln_phi`]; `None` when `b = 0` or `σ = 0`, where `φ ≡ 1`.
+fn bounded_scale(lower: f64, upper: f64, std: f64, y: f64) -> Option<(f64, f64)> {
+    let b = lower.abs().max(upper.abs());
+    if b == 0.0 || std == 0.0 {
+        return None;
+    }
+    Some(((std / b) * (std / b), y * b))
 }
 
 /// `sinh(y)/y − 1`, by its Taylor series below 1 (no cancellation), directly above.
