@@ -11,6 +11,10 @@
 //! * [`simulate`]: exact state-vector simulation that produces synthetic runs;
 //! * [`cli`]: the command line, kept thin;
 //! * [`numbers`]: the JSON form of a computed number (below both checks and certificate).
+//!
+//! Each module uses only modules below it: `model`, `error` and `numbers` nothing else;
+//! `inputs` and `bounds` the model; `checks` the bounds; `certificate` the checks, bounds and
+//! inputs; `simulate` the inputs; `outputs` the certificate, inputs and simulator; `cli` all.
 
 pub mod bounds;
 pub mod certificate;
