@@ -76,9 +76,10 @@ fn write_document(
     Ok(digest)
 }
 
-/// [`write_document`] to the temporary `tmp` standing for `path`, through a buffer: the text
-/// is never held whole. The digest is the given one or, if `None`, computed as the body is
-/// written; it is returned. The atomic write around it is [`crate::outputs::certificate_file`].
+/// Writes the file's text (the layout of `write_document` above) to the temporary `tmp`
+/// standing for `path`, through a buffer: the text is never held whole. The digest is the given
+/// one or, if `None`, computed as the body is written; it is returned. The atomic write around
+/// it is [`crate::outputs::certificate_file`].
 pub fn write_document_file(
     body: &Value,
     digest: Option<&str>,

@@ -1,7 +1,7 @@
 //! `quassay certify`: bounds and certificate for one run, and a compact summary table.
 //!
 //! Several runs, or folders of runs, go to [`super::batch`] (the choice is made in
-//! [`super::run`]), which certifies each through `certify_one` as a single run is certified
+//! [`super::main`]), which certifies each through `certify_one` as a single run is certified
 //! here; this module does not depend on the batch.
 
 use std::io::IsTerminal;

@@ -55,7 +55,7 @@ pub enum BiasSet {
 }
 
 /// The light-cone terms of one observable at one time. The shot term does not depend on the
-/// statement and is taken from the global [`PointBounds`].
+/// statement and is taken from the global [`PointBounds`](super::global::PointBounds).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct LocalTerms {
     pub e_wc: f64,
