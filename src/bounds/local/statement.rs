@@ -2,7 +2,7 @@
 //! whole support, or term by term, whichever has the smallest `E_avg` (docs/method.md §5,
 //! "Global or light-cone statement").
 
-use super::super::global::PointBounds;
+use crate::bounds::global::PointBounds;
 
 use super::*;
 

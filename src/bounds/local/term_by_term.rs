@@ -3,7 +3,7 @@
 //! term, the sensitivity `E_i = min(s_O t, s_O T_i, Σ_a |w_a| s_a T_{a,i})` per source and time,
 //! and the terms of §3 on those sensitivities.
 
-use super::super::light_cone::{Exposure, ExposureCache, InstanceIndex, Unavailable};
+use crate::bounds::light_cone::{Exposure, ExposureCache, InstanceIndex, Unavailable};
 use crate::model::Terms;
 use rayon::prelude::*;
 

@@ -2,10 +2,10 @@
 //! the sensitivities), computed once, then the tests of one observable at a time so that a
 //! streaming reader can drop its data, and the Holm correction over all of them at the end.
 
-use super::super::columns::ColumnStats;
-use super::super::ideal::HalfWidth;
-use super::super::maurer_pontil;
 use crate::bounds::global::{bias_ln_sum, PointBounds, SourceData};
+use crate::checks::columns::ColumnStats;
+use crate::checks::ideal::HalfWidth;
+use crate::checks::maurer_pontil;
 use crate::model::noise::Redrawn;
 use crate::model::Observable;
 

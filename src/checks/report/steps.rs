@@ -2,12 +2,12 @@
 //! Holm's step-down correction over a family, the list of failures, and the implied noise
 //! scale of one observable (docs/checks.md §2, §5 and §7).
 
-use super::super::chi_square::{chi2_isf, chi2_sf};
-use super::super::columns::ShotSum;
-use super::super::holm::holm_adjust;
-use super::super::maurer_pontil;
-use super::super::variance::{bhatia_davis_max, hoeffding_mean_radius, noise_variance};
 use crate::bounds::global::SourceData;
+use crate::checks::chi_square::{chi2_isf, chi2_sf};
+use crate::checks::columns::ShotSum;
+use crate::checks::holm::holm_adjust;
+use crate::checks::maurer_pontil;
+use crate::checks::variance::{bhatia_davis_max, hoeffding_mean_radius, noise_variance};
 use crate::model::noise::Redrawn;
 use crate::model::Observable;
 
