@@ -34,14 +34,7 @@ use crate::inputs::run_file::{
 };
 use crate::model::{NoiseModel, NoiseRecord};
 
-/// Everything a certificate is computed from, read and checked (the run without its R × T
-/// datasets, which the bounds and digests consumed as they streamed by).
-#[derive(Debug, Clone)]
-pub struct Loaded {
-    pub run: RunOutline,
-    pub record: NoiseRecord,
-    pub model: NoiseModel,
-}
+pub use super::body::Loaded;
 
 /// Reads and checks the run and the noise record, and expands the record against the run.
 pub fn load_inputs(run_path: &Path, noise_path: &Path) -> Result<Loaded> {
@@ -79,7 +72,7 @@ fn expand(
 pub struct Computed {
     pub loaded: Loaded,
     pub bounds: RunBounds,
-    /// The consistency checks of the data against the record (bounds.md §6).
+    /// The consistency checks of the data against the record (docs/checks.md).
     pub checks: ChecksReport,
     pub body: Value,
 }
