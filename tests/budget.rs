@@ -74,6 +74,8 @@ fn the_planned_scale_gives_the_target_error_when_certified() {
         .arg(dir.path().join("run.h5"))
         .arg("--noise")
         .arg(&noise)
+        // budget plans the model statement alone, at the whole confidence level.
+        .args(["--data-share", "0"])
         .output()
         .unwrap();
     // 0: consistent; 3: the record was judged inconsistent, the certificate is still written.

@@ -122,6 +122,25 @@ pub fn alpha_per_point(data_epsilon: f64, points: usize, simultaneity: Simultane
     }
 }
 
+/// Whether a data statement can narrow anything for runs of `realizations` values per point
+/// at failure probability `alpha_point`: its interval for the mean on the most favourable
+/// data there are (every value at the middle of the range, no spread) must be narrower than
+/// the whole range. Decided from the run's shape alone, before any value is read; where it
+/// is false (for instance with one realization) the model statement keeps all of ε.
+pub fn can_narrow(realizations: usize, alpha_point: f64, method: MeanMethod) -> bool {
+    if realizations < 2 || !(alpha_point > 0.0) {
+        return false;
+    }
+    let flat = vec![0.5; realizations];
+    let [lo, hi] = match method {
+        MeanMethod::EmpiricalBernstein => {
+            empirical_bernstein_interval(&flat, 0.0, 1.0, alpha_point)
+        }
+        _ => betting_interval(&flat, 0.0, 1.0, alpha_point),
+    };
+    hi - lo < 1.0
+}
+
 /// The data statement at one point.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct DataPoint {

@@ -136,6 +136,31 @@ pub fn compute_body(
     })
 }
 
+/// The data share in force: the one asked for, or 0 when no data statement could narrow the
+/// interval for runs of this shape (one realization, say; docs/method.md §6). Fixed by the
+/// run's shape and the options, before any value is read.
+fn effective_share(
+    stream: &crate::inputs::run_file::RunStream,
+    options: &CertifyOptions,
+    header: Option<&RunOutline>,
+    n_observables: usize,
+) -> f64 {
+    let (Some(r), Some(h)) = (stream.first_realizations(), header) else {
+        return options.data_share;
+    };
+    let Ok(s) = data_statement::shares(options.confidence, options.data_share) else {
+        return options.data_share;
+    };
+    let points = h.times.len() * n_observables;
+    let alpha = data_statement::alpha_per_point(s.data_epsilon, points, options.simultaneity);
+    let method = data_statement::method_for(r, h.times.len(), n_observables);
+    if data_statement::can_narrow(r, alpha, method) {
+        options.data_share
+    } else {
+        0.0
+    }
+}
+
 /// What the data statement needs on the checking thread.
 #[derive(Debug, Clone, Copy)]
 struct DataPlan {
@@ -167,7 +192,8 @@ fn stream_run(
     };
     // The data statement takes its share of ε before any value is read; the model statement
     // is evaluated at the rest, the fidelity statement at the whole ε (docs/method.md §6).
-    let shares = data_statement::shares(options.confidence, options.data_share);
+    let share = effective_share(&stream, options, header.as_ref(), n_observables);
+    let shares = data_statement::shares(options.confidence, share);
     let evaluator = match (&header, &model, shares) {
         (_, _, Err(e)) => Some(Err(Error::Options(e.to_string()))),
         (Some(h), Some(Ok(model)), Ok(shares)) => Some(
@@ -219,7 +245,7 @@ fn stream_run(
     let (to_checks, observables_read) = sync_channel::<ObservableRead>(1);
     let (times, sources) = (&times, &sources);
     // The data statement's failure probability per point, when it has a share.
-    let data = match data_statement::shares(options.confidence, options.data_share) {
+    let data = match data_statement::shares(options.confidence, share) {
         Ok(s) if s.data_epsilon > 0.0 => Some(DataPlan {
             alpha_point: data_statement::alpha_per_point(
                 s.data_epsilon,

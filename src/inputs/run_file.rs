@@ -261,6 +261,15 @@ impl RunStream {
         }
     }
 
+    /// The realizations R of the first listed observable, from its `values` dataset's shape
+    /// (metadata only, before any value is read); `None` if it cannot be read (the layout
+    /// checks then report why).
+    pub fn first_realizations(&self) -> Option<usize> {
+        let (g, names) = self.listing.as_ref()?;
+        let d = g.dataset(&format!("{}/values", names.first()?)).ok()?;
+        d.shape().first().copied()
+    }
+
     /// How many of the listed observables have an `ideal` dataset (a cheap look at the links,
     /// before anything is read).
     pub fn n_with_ideal(&self) -> usize {
