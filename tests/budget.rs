@@ -223,3 +223,37 @@ fn impossible_targets_and_bad_options() {
             .code(2);
     }
 }
+
+/// Regression: a record with a source on every bond (the bundled 3 × 4 array's coupling
+/// errors) made the search over system sizes start at a 1 × 1 array, which has no bonds, and
+/// the whole command failed with "the run's lattice (square with 1 sites) has no bonds".
+#[test]
+fn a_record_with_bond_sources_plans_a_square_lattice() {
+    let noise = repo().join("example_runs/square3x4/noise.json");
+    let out = quassay()
+        .arg("budget")
+        .arg("--noise")
+        .arg(&noise)
+        .args([
+            "--lattice",
+            "square:10x10",
+            "--time-unit",
+            "us",
+            "--spectrum",
+            "-1,1",
+        ])
+        .args(["--target", "0.1", "--time", "1", "--json"])
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    // The size search ran (it needs the record on other sizes, down to a side of 2).
+    let size = &v["size"];
+    assert!(size.is_object() || size.is_array(), "{size}");
+    assert_ne!(size["status"], "not_available", "{size}");
+}

@@ -210,9 +210,19 @@ impl Problem {
         vec![l; self.geometry.dimension()]
     }
 
+    /// The smallest side the search over system sizes tries: 3 for a periodic lattice, and 2
+    /// when a source acts on every bond (a side of 1 has no bond along it, and a 1 × 1 array
+    /// none at all, on which such a record cannot be laid).
     fn min_side(&self) -> usize {
+        let bonds = self
+            .record
+            .sources
+            .iter()
+            .any(|s| matches!(s.acts_on, ActsOn::EachBond));
         if self.boundary == Boundary::Periodic {
             3
+        } else if bonds {
+            2
         } else {
             1
         }
