@@ -214,7 +214,26 @@ impl Certificate {
 }
 
 /// The envelope of a certificate issued now.
-pub fn envelope_now() -> Value {
+///
+/// By default it holds no host name and no directory: the command line keeps its options and
+/// values, but every argument that names an existing file or folder, and the program itself,
+/// is cut to its last component, so a certificate attached to a public dataset does not
+/// disclose the machine or its folders. With `full`, the host name and the command line as
+/// typed are recorded, for a lab's internal records.
+pub fn envelope_now(full: bool) -> Value {
+    let args: Vec<String> = std::env::args().collect();
+    if !full {
+        let command_line: Vec<String> = args
+            .iter()
+            .enumerate()
+            .map(|(i, a)| private_argument(i, a))
+            .collect();
+        return json!({
+            "issued_at": utc_now_rfc3339(),
+            "command_line": command_line,
+            "note": "the envelope is not covered by the digest; paths are cut to their file names",
+        });
+    }
     let host = std::fs::read_to_string("/etc/hostname")
         .map(|s| s.trim().to_owned())
         .ok()
@@ -224,9 +243,32 @@ pub fn envelope_now() -> Value {
     json!({
         "issued_at": utc_now_rfc3339(),
         "host": host,
-        "command_line": std::env::args().collect::<Vec<_>>(),
+        "command_line": args,
         "note": "the envelope is not covered by the digest",
     })
+}
+
+/// One argument of the command line for the default envelope: the program and anything with
+/// a directory part (`/`) cut to the last component, `--option=PATH` likewise after the `=`.
+fn private_argument(index: usize, arg: &str) -> String {
+    let last = |s: &str| -> String {
+        let trimmed = s.trim_end_matches('/');
+        match trimmed.rsplit_once('/') {
+            Some((_, name)) if !name.is_empty() => name.to_owned(),
+            _ if trimmed.is_empty() => s.to_owned(),
+            _ => trimmed.to_owned(),
+        }
+    };
+    if index == 0 {
+        return last(arg);
+    }
+    match arg.split_once('=') {
+        Some((opt, value)) if opt.starts_with("--") && value.contains('/') => {
+            format!("{opt}={}", last(value))
+        }
+        _ if arg.contains('/') => last(arg),
+        _ => arg.to_owned(),
+    }
 }
 
 /// The current time as `YYYY-MM-DDTHH:MM:SSZ` (RFC 3339, UTC).
@@ -265,6 +307,23 @@ mod tests {
     use super::*;
 
     #[test]
+    #[test]
+    fn the_default_envelope_keeps_no_directory() {
+        assert_eq!(private_argument(0, "/home/someone/bin/quassay"), "quassay");
+        assert_eq!(private_argument(1, "certify"), "certify");
+        assert_eq!(private_argument(2, "/home/someone/data/run.h5"), "run.h5");
+        assert_eq!(
+            private_argument(3, "--noise=/srv/lab/noise.json"),
+            "--noise=noise.json"
+        );
+        assert_eq!(private_argument(4, "runs/"), "runs");
+        assert_eq!(private_argument(5, "0.95"), "0.95");
+        assert_eq!(private_argument(6, "/"), "/");
+        let e = envelope_now(false);
+        assert!(e.get("host").is_none());
+        assert!(envelope_now(true).get("host").is_some());
+    }
+
     fn unix_times_format_as_rfc_3339() {
         // Reference points: the Unix epoch; 2000-03-01 (after a leap day of a century year
         // divisible by 400) is 951868800 s; 2026-12-01T00:00:00Z is 1796083200 s (both computed

@@ -87,6 +87,11 @@ pub struct CertifyArgs {
     /// model statement gets the rest. See docs/method.md section 6.
     #[arg(long, default_value_t = 0.5, value_parser = data_share)]
     pub data_share: f64,
+    /// Record the host name and the command line as typed (with its absolute paths) in the
+    /// certificate's envelope, for a lab's internal records; by default the envelope holds
+    /// neither, so a certificate attached to a public dataset does not disclose them.
+    #[arg(long)]
+    pub full_envelope: bool,
     /// Print the summary as JSON on standard output instead of a table.
     #[arg(long)]
     pub json: bool,

@@ -304,6 +304,7 @@ fn certify_item(run: &Path, args: &CertifyArgs, options: &CertifyOptions) -> Lin
         report: report.as_deref(),
         options,
         force: args.force,
+        full_envelope: args.full_envelope,
     };
     let attempt = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
         certify_one(&job, &Progress(false))

@@ -74,6 +74,8 @@ pub(super) struct Job<'a> {
     pub report: Option<&'a Path>,
     pub options: &'a CertifyOptions,
     pub force: bool,
+    /// Record the host name and the command line as typed in the envelope.
+    pub full_envelope: bool,
 }
 
 /// A certificate written, with what produced it and the notes for the summary.
@@ -112,7 +114,7 @@ pub(super) fn certify_one(job: &Job, progress: &Progress) -> crate::Result<Certi
     // streamed to the file while its digest is computed on another thread.
     let cert = crate::outputs::certificate_file::seal_and_write(
         std::mem::take(&mut computed.body),
-        envelope_now(),
+        envelope_now(job.full_envelope),
         job.output,
         job.force,
     )?;
@@ -187,6 +189,7 @@ pub fn run_single(args: &CertifyArgs, run: &Path) -> crate::Result<Outcome> {
             report: report.as_deref(),
             options: &options,
             force: args.force,
+            full_envelope: args.full_envelope,
         },
         &progress,
     )?;
