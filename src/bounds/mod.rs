@@ -3,6 +3,8 @@
 //! * [`family`]: per-family constants and the bias generating function (§2);
 //! * [`global`]: the global bounds at one (time, observable) point (§3), written on per-source
 //!   sensitivities so that the light-cone version (§5) can reuse them;
+//! * [`data_interval`]: confidence intervals for a mean from the data themselves (betting,
+//!   empirical Bernstein, Clopper–Pearson), issue #17;
 //! * [`confidence`]: splitting the user's confidence into the noise and shot parts, Bonferroni;
 //! * [`fidelity`]: the fidelity lower bound (§4);
 //! * [`light_cone`]: Lieb–Robinson walk sums and exposure times `T_i(t)` (§5);
@@ -11,6 +13,7 @@
 //! * [`special`]: the error function and the normal tail, accurate to a few ulps.
 
 pub mod confidence;
+pub mod data_interval;
 pub mod family;
 pub mod fidelity;
 pub mod global;
