@@ -141,7 +141,7 @@ fn boundary(z: &[f64], lam: &[f64], c: f64, side: Side, last_only: bool) -> f64 
         return edge;
     }
     let e1 = evaluate(z, lam, c, side, far, last_only);
-    if !(e1.g < 0.0) {
+    if e1.g.is_nan() || e1.g >= 0.0 {
         // Unreachable for α < 1 (at the far end every factor is ≤ 1), kept for safety.
         return far;
     }

@@ -21,7 +21,7 @@ use super::U;
 /// probability `alpha` (two-sided, `alpha/2` each side), rounded outward, within [0, 1].
 /// `n = 0`, `k > n` or `alpha` outside (0, 1) give [0, 1].
 pub fn clopper_pearson(k: u64, n: u64, alpha: f64) -> [f64; 2] {
-    if n == 0 || k > n || !(alpha > 0.0 && alpha < 1.0) {
+    if n == 0 || k > n || alpha.is_nan() || alpha <= 0.0 || alpha >= 1.0 {
         return [0.0, 1.0];
     }
     let a = alpha / 2.0;
@@ -31,7 +31,9 @@ pub fn clopper_pearson(k: u64, n: u64, alpha: f64) -> [f64; 2] {
     let hi = if q == 0.0 {
         1.0
     } else {
-        (1.0 - q).next_up().min(1.0)
+        // One ulp up (1 − q > 0 here, so the bit pattern steps up in value; MSRV 1.85 has no
+        // `next_up`).
+        f64::from_bits((1.0 - q).to_bits() + 1).min(1.0)
     };
     [lo, hi]
 }

@@ -75,7 +75,13 @@ pub(crate) fn map_back(l: f64, u: f64, lo: f64, hi: f64) -> [f64; 2] {
 /// True when the inputs admit no informative interval: no values, an empty or degenerate range,
 /// or a level that is not in (0, 1). The caller then returns `[lo, hi]`.
 pub(crate) fn trivial(values: &[f64], lo: f64, hi: f64, alpha: f64) -> bool {
-    values.is_empty() || !(lo < hi) || !(alpha > 0.0 && alpha < 1.0)
+    values.is_empty()
+        || lo.is_nan()
+        || hi.is_nan()
+        || lo >= hi
+        || alpha.is_nan()
+        || alpha <= 0.0
+        || alpha >= 1.0
 }
 
 /// The predictable bets of confseq 0.0.11's `lambda_predmix_eb(z, truncation, alpha, fixed_n = n)`
@@ -154,6 +160,85 @@ pub(crate) mod fixtures {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Smallest c with P(Bin(n, p) ≥ c) ≤ level (exact pmf, summed in log space); mirrors the
+    /// helper in `src/checks/maurer_pontil.rs`.
+    fn binomial_critical(n: u64, p: f64, level: f64) -> u64 {
+        use statrs::function::gamma::ln_gamma;
+        let ln_pmf = |k: u64| {
+            ln_gamma(n as f64 + 1.0) - ln_gamma(k as f64 + 1.0) - ln_gamma((n - k) as f64 + 1.0)
+                + k as f64 * p.ln()
+                + (n - k) as f64 * (1.0 - p).ln()
+        };
+        let mut tail = 0.0;
+        for k in (0..=n).rev() {
+            tail += ln_pmf(k).exp();
+            if tail > level {
+                return k + 1;
+            }
+        }
+        0
+    }
+
+    /// Coverage (seeded ChaCha20): 2000 trials each of Bernoulli(0.3), uniform, and a
+    /// low-variance two-point law on [−1, 1], R = 20, α = 0.1; misses of betting and of
+    /// empirical Bernstein are within the exact binomial allowance (Bin(2000, 0.1) at 1e-3).
+    /// Clopper–Pearson likewise on Bin(20, 0.3) counts.
+    #[test]
+    fn coverage_within_binomial_allowance() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(17);
+        let (trials, r, alpha) = (2000u64, 20usize, 0.1);
+        let allowed = binomial_critical(trials, alpha, 1e-3);
+        type Law = fn(&mut rand_chacha::ChaCha20Rng) -> f64;
+        let laws: [(Law, f64); 3] = [
+            (|g| if g.random::<f64>() < 0.3 { 1.0 } else { -1.0 }, -0.4),
+            (|g| g.random::<f64>() * 2.0 - 1.0, 0.0),
+            (|g| if g.random::<f64>() < 0.5 { 0.1 } else { 0.2 }, 0.15),
+        ];
+        for (law, mean) in laws {
+            let (mut miss_b, mut miss_e) = (0, 0);
+            for _ in 0..trials {
+                let x: Vec<f64> = (0..r).map(|_| law(&mut rng)).collect();
+                let b = betting_interval(&x, -1.0, 1.0, alpha);
+                let e = empirical_bernstein_interval(&x, -1.0, 1.0, alpha);
+                miss_b += u64::from(!(b[0] <= mean && mean <= b[1]));
+                miss_e += u64::from(!(e[0] <= mean && mean <= e[1]));
+            }
+            assert!(miss_b < allowed, "betting misses {miss_b} ≥ {allowed}");
+            assert!(
+                miss_e < allowed,
+                "empirical Bernstein misses {miss_e} ≥ {allowed}"
+            );
+        }
+        let mut miss = 0;
+        for _ in 0..trials {
+            let k = (0..r).filter(|_| rng.random::<f64>() < 0.3).count() as u64;
+            let [l, u] = clopper_pearson(k, r as u64, alpha);
+            miss += u64::from(!(l <= 0.3 && 0.3 <= u));
+        }
+        assert!(miss < allowed, "Clopper–Pearson misses {miss} ≥ {allowed}");
+    }
+
+    /// Tightness: on low-variance data the betting interval is narrower than Hoeffding's
+    /// two-sided `mean ± (hi − lo) sqrt(ln(2/α)/(2R))`.
+    #[test]
+    fn betting_narrower_than_hoeffding_on_low_variance() {
+        for (r, alpha) in [(50usize, 0.05), (200, 0.01), (1000, 1e-3)] {
+            let x: Vec<f64> = (0..r)
+                .map(|i| 0.3 + 0.05 * ((i % 7) as f64 / 6.0))
+                .collect();
+            let [l, u] = betting_interval(&x, -1.0, 1.0, alpha);
+            let hoeffding = 2.0 * 2.0 * ((2.0 / alpha).ln() / (2.0 * r as f64)).sqrt();
+            assert!(
+                u - l < 0.5 * hoeffding,
+                "R={r}: width {} vs Hoeffding {hoeffding}",
+                u - l
+            );
+            let mean = x.iter().sum::<f64>() / r as f64;
+            assert!(l <= mean && mean <= u);
+        }
+    }
 
     #[test]
     fn method_names() {
