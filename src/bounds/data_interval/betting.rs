@@ -126,10 +126,11 @@ const MAX_EVALS: usize = 60;
 /// (Lower) or the smallest above it (Upper), or 0 / 1 when the range end itself is not rejected.
 ///
 /// Search: a bracket `[r, q]` (in the direction of `side`), `r` verified rejected (`g ≥ 0`),
-/// `q` not. Each round tries a Newton step from `q` and a secant step through `r` and `q`;
-/// for one concave `ln K_t` (it is concave in `m`: a sum of logs of affine functions) Newton
-/// from the accepted side lands on the accepted side and the secant on the rejected side, so
-/// both ends close in, Newton quadratically. Steps outside the bracket become bisections, and
+/// `q` not. Each round tries a Newton step from `q` (for one concave `ln K_t`, and it is
+/// concave in `m`, a sum of logs of affine functions, Newton from the accepted side stays on
+/// the accepted side and converges quadratically), then a probe just beyond the root on the
+/// rejected side (twice the next Newton correction past `q`; the secant if that falls
+/// outside), so that `r` closes in as fast as `q`. Steps outside the bracket become bisections, and
 /// a round that does not halve the bracket adds a bisection, so the search always terminates.
 fn boundary(z: &[f64], lam: &[f64], c: f64, side: Side, last_only: bool) -> f64 {
     let (edge, far) = match side {
@@ -140,38 +141,63 @@ fn boundary(z: &[f64], lam: &[f64], c: f64, side: Side, last_only: bool) -> f64 
     if e0.g.is_nan() || e0.g < 0.0 {
         return edge;
     }
-    let e1 = evaluate(z, lam, c, side, far, last_only);
+    // First accepted point: Newton from the rejected range end overshoots onto the accepted
+    // side for a concave decreasing ln K (its tangent lies above it), usually close to the
+    // root; the far end (where every factor is ≤ 1, so it is accepted for α < 1) otherwise.
+    let (mut r, mut gr) = (edge, e0.g);
+    let mut evals = 1;
+    let first = edge - e0.g / e0.dg;
+    let mut e1 = None;
+    if inside(first, edge, far) {
+        let e = evaluate(z, lam, c, side, first, last_only);
+        evals += 1;
+        if e.g >= 0.0 {
+            r = first;
+            gr = e.g;
+        } else {
+            e1 = Some((first, e));
+        }
+    }
+    let (mut q, e1) = match e1 {
+        Some(v) => v,
+        None => {
+            evals += 1;
+            (far, evaluate(z, lam, c, side, far, last_only))
+        }
+    };
     if e1.g.is_nan() || e1.g >= 0.0 {
-        // Unreachable for α < 1 (at the far end every factor is ≤ 1), kept for safety.
+        // Unreachable for α < 1, kept for safety.
         return far;
     }
-    let (mut r, mut gr) = (edge, e0.g);
-    let (mut q, mut gq, mut dq) = (far, e1.g, e1.dg);
-    let mut evals = 2;
-    while evals < MAX_EVALS {
+    let (mut gq, mut dq) = (e1.g, e1.dg);
+    let tol = |r: f64, q: f64| 1e-12 * r.abs().max(q.abs()) + 1e-15;
+    while evals < MAX_EVALS && (q - r).abs() > tol(r, q) {
         let width = (q - r).abs();
-        if width <= 2e-13 * r.abs().max(q.abs()) + 1e-16 {
-            break;
-        }
-        let mid = 0.5 * (r + q);
-        let newton = q - gq / dq;
-        let secant = if gq.is_finite() && gr.is_finite() {
-            r - gr * (q - r) / (gq - gr)
-        } else {
-            f64::NAN
-        };
-        let mut candidates = [
-            if inside(newton, r, q) { newton } else { mid },
-            if inside(secant, r, q) { secant } else { mid },
-            f64::NAN,
-        ];
-        let mut k = 0;
-        while k < candidates.len() && evals < MAX_EVALS {
-            let x = candidates[k];
-            k += 1;
-            if !inside(x, r, q) {
-                continue;
+        for step in 0..3 {
+            if evals >= MAX_EVALS || (q - r).abs() <= tol(r, q) {
+                break;
             }
+            let mid = 0.5 * (r + q);
+            let x = match step {
+                // Newton from the accepted end.
+                0 => q - gq / dq,
+                // Probe on the rejected side of the root: twice the next Newton correction
+                // beyond it, plus a quarter tolerance; else the secant; else the midpoint.
+                1 => {
+                    let probe = q - 2.0 * gq / dq + 0.25 * tol(r, q) * (r - q).signum();
+                    if inside(probe, r, q) {
+                        probe
+                    } else if gq.is_finite() && gr.is_finite() {
+                        r - gr * (q - r) / (gq - gr)
+                    } else {
+                        mid
+                    }
+                }
+                // Safeguard: a round that did not halve the bracket adds a bisection.
+                _ if (q - r).abs() > 0.5 * width => mid,
+                _ => break,
+            };
+            let x = if inside(x, r, q) { x } else { mid };
             let e = evaluate(z, lam, c, side, x, last_only);
             evals += 1;
             if e.g >= 0.0 {
@@ -181,9 +207,6 @@ fn boundary(z: &[f64], lam: &[f64], c: f64, side: Side, last_only: bool) -> f64 
                 q = x;
                 gq = e.g;
                 dq = e.dg;
-            }
-            if k == 2 && (q - r).abs() > 0.5 * width {
-                candidates[2] = 0.5 * (r + q);
             }
         }
     }
