@@ -12,7 +12,7 @@
 //! * [`empirical_bernstein_interval`]: the predictable plug-in empirical-Bernstein interval of
 //!   the same paper, closed form, as confseq 0.0.11's `predmix_empbern_ci`
 //!   ([`empirical_bernstein`]);
-//! * [`clopper_pearson`]: the exact binomial interval (Clopper & Pearson 1934)
+//! * [`clopper_pearson()`]: the exact binomial interval (Clopper & Pearson 1934)
 //!   ([`clopper_pearson`](mod@clopper_pearson)).
 //!
 //! Derivation and numerical care: `docs/data-interval-draft.md`.
@@ -32,7 +32,7 @@ pub enum MeanMethod {
     Betting,
     /// Predictable plug-in empirical Bernstein, [`empirical_bernstein_interval`].
     EmpiricalBernstein,
-    /// Exact binomial, [`clopper_pearson`].
+    /// Exact binomial, [`clopper_pearson()`].
     ClopperPearson,
 }
 
