@@ -234,18 +234,7 @@ mod tests {
         assert!(cases.len() >= 50);
         for (i, c) in cases.iter().enumerate() {
             let [l, u] = betting_interval(&c.x, 0.0, 1.0, c.alpha);
-            let [el, eu] = c.exact;
-            let tol = |v: f64| 1e-9 * v.abs().max(1e-300) + 1e-15;
-            assert!(
-                l <= el && el - l <= tol(el),
-                "case {i} ({}): L {l} vs {el}",
-                c.kind
-            );
-            assert!(
-                u >= eu && u - eu <= tol(eu),
-                "case {i} ({}): U {u} vs {eu}",
-                c.kind
-            );
+            fixtures::assert_outward_close(&format!("case {i} ({})", c.kind), [l, u], c.exact);
             let step = 1.0 / c.breaks + 1e-12;
             let [gl, gu] = c.grid;
             assert!(

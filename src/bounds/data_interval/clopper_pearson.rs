@@ -132,7 +132,7 @@ fn beta_cf(a: f64, b: f64, x: f64) -> Option<(f64, u64)> {
 /// `exp(S(n) − S(k) − S(n−k) − bd0(k, np) − bd0(n−k, n(1−p))) · sqrt(n / (2π k (n−k)))`,
 /// with `S` the Stirling remainder and `bd0(x, M) = x ln(x/M) + M − x` summed as a series when
 /// `x ≈ M`, so that no large terms cancel.
-fn dbinom(k: u64, n: u64, p: f64) -> (f64, f64) {
+pub(crate) fn dbinom(k: u64, n: u64, p: f64) -> (f64, f64) {
     let (kf, nf) = (k as f64, n as f64);
     if k == n {
         // p^n: ln p has relative error u, times n.

@@ -85,18 +85,7 @@ mod tests {
     fn matches_confseq_predmix_empbern_ci() {
         for (i, c) in fixtures::cases().iter().enumerate() {
             let [l, u] = empirical_bernstein_interval(&c.x, 0.0, 1.0, c.alpha);
-            let [el, eu] = c.empbern;
-            let tol = |v: f64| 1e-9 * v.abs() + 1e-15;
-            assert!(
-                l <= el && el - l <= tol(el),
-                "case {i} ({}): L {l} vs {el}",
-                c.kind
-            );
-            assert!(
-                u >= eu && u - eu <= tol(eu),
-                "case {i} ({}): U {u} vs {eu}",
-                c.kind
-            );
+            fixtures::assert_outward_close(&format!("case {i} ({})", c.kind), [l, u], c.empbern);
         }
     }
 }

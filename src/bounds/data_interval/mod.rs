@@ -127,6 +127,14 @@ pub(crate) mod fixtures {
         pub empbern: [f64; 2],
     }
 
+    /// Asserts `got` contains `reference` and is wider by at most 1e-9 relative (+1e-15).
+    pub fn assert_outward_close(what: &str, got: [f64; 2], reference: [f64; 2]) {
+        let tol = |v: f64| 1e-9 * v.abs() + 1e-15;
+        let ([l, u], [el, eu]) = (got, reference);
+        assert!(l <= el && el - l <= tol(el), "{what}: L {l} vs {el}");
+        assert!(u >= eu && u - eu <= tol(eu), "{what}: U {u} vs {eu}");
+    }
+
     fn pair(v: &serde_json::Value) -> [f64; 2] {
         [v[0].as_f64().unwrap(), v[1].as_f64().unwrap()]
     }
@@ -161,23 +169,17 @@ pub(crate) mod fixtures {
 mod tests {
     use super::*;
 
-    /// Smallest c with P(Bin(n, p) ≥ c) ≤ level (exact pmf, summed in log space); mirrors the
-    /// helper in `src/checks/maurer_pontil.rs`.
+    /// Smallest c with P(Bin(n, p) ≥ c) ≤ level: the exact pmf (Loader's form from
+    /// `clopper_pearson`, accurate for every n) summed from the top.
     fn binomial_critical(n: u64, p: f64, level: f64) -> u64 {
-        use statrs::function::gamma::ln_gamma;
-        let ln_pmf = |k: u64| {
-            ln_gamma(n as f64 + 1.0) - ln_gamma(k as f64 + 1.0) - ln_gamma((n - k) as f64 + 1.0)
-                + k as f64 * p.ln()
-                + (n - k) as f64 * (1.0 - p).ln()
-        };
         let mut tail = 0.0;
-        for k in (0..=n).rev() {
-            tail += ln_pmf(k).exp();
+        for k in (1..=n).rev() {
+            tail += clopper_pearson::dbinom(k, n, p).0;
             if tail > level {
                 return k + 1;
             }
         }
-        0
+        1
     }
 
     /// Coverage (seeded ChaCha20): 2000 trials each of Bernoulli(0.3), uniform, and a
