@@ -93,31 +93,24 @@ fn beta_cf(a: f64, b: f64, x: f64) -> Option<(f64, u64)> {
     }
     d = 1.0 / d;
     let mut h = d;
+    // One Lentz update with coefficient `aa`: returns the factor `d·c` that multiplies `h`.
+    let mut lentz = |aa: f64| {
+        d = 1.0 + aa * d;
+        if d.abs() < tiny {
+            d = tiny;
+        }
+        c = 1.0 + aa / c;
+        if c.abs() < tiny {
+            c = tiny;
+        }
+        d = 1.0 / d;
+        d * c
+    };
     for m in 1..1_000_000u64 {
         let mf = m as f64;
         let m2 = 2.0 * mf;
-        let aa = mf * (b - mf) * x / ((qam + m2) * (a + m2));
-        d = 1.0 + aa * d;
-        if d.abs() < tiny {
-            d = tiny;
-        }
-        c = 1.0 + aa / c;
-        if c.abs() < tiny {
-            c = tiny;
-        }
-        d = 1.0 / d;
-        h *= d * c;
-        let aa = -(a + mf) * (qab + mf) * x / ((a + m2) * (qap + m2));
-        d = 1.0 + aa * d;
-        if d.abs() < tiny {
-            d = tiny;
-        }
-        c = 1.0 + aa / c;
-        if c.abs() < tiny {
-            c = tiny;
-        }
-        d = 1.0 / d;
-        let del = d * c;
+        h *= lentz(mf * (b - mf) * x / ((qam + m2) * (a + m2)));
+        let del = lentz(-(a + mf) * (qab + mf) * x / ((a + m2) * (qap + m2)));
         h *= del;
         if (del - 1.0).abs() <= 2.0 * U {
             return Some((h, m));
