@@ -121,7 +121,7 @@ fn beta_cf(a: f64, b: f64, x: f64) -> Option<(f64, u64)> {
 
 /// The binomial pmf `C(n, k) p^k (1−p)^(n−k)` for `1 ≤ k ≤ n`, `0 < p < 1`, with a bound on its
 /// relative error. Loader's form (C. Loader, "Fast and accurate computation of binomial
-/// probabilities", 2000; the method of R's `dbinom`):
+/// probabilities", 2000, citation from memory; the method of R's `dbinom`):
 /// `exp(S(n) − S(k) − S(n−k) − bd0(k, np) − bd0(n−k, n(1−p))) · sqrt(n / (2π k (n−k)))`,
 /// with `S` the Stirling remainder and `bd0(x, M) = x ln(x/M) + M − x` summed as a series when
 /// `x ≈ M`, so that no large terms cancel.

@@ -7,7 +7,8 @@
 //! `predmix_empbern_ci` does not pass its `running_intersection` argument on, so the
 //! reference takes no running intersection; neither does this (doing so would be valid too,
 //! and could only narrow the interval). Reference: Waudby-Smith & Ramdas, JRSS-B 2024,
-//! arXiv 2010.09686, Theorem 2 / eq. (13)–(15).
+//! arXiv 2010.09686 (its predictable plug-in empirical-Bernstein interval; theorem and equation
+//! numbers not checked here).
 //!
 //! Lower bound at level a (on `z ∈ [0, 1]`), with `λ_i = min(1/2, lambda_predmix_eb)`,
 //! `ψ(λ) = −ln(1 − λ) − λ`, `v_i = (z_i − μ̂_{i−1})²`, `μ̂_0 = 0`, `μ̂_t = Σ_{j≤t} z_j / t`:
