@@ -3,6 +3,9 @@
 //! * [`family`]: per-family constants and the bias generating function (§2);
 //! * [`global`]: the global bounds at one (time, observable) point (§3), written on per-source
 //!   sensitivities so that the light-cone version (§5) can reuse them;
+//! * [`data_interval`]: confidence intervals for a bounded mean from the data themselves
+//!   (betting, empirical Bernstein, Clopper–Pearson; §6.1);
+//! * [`data_statement`]: the data statement of §6, built on them, and the split of ε;
 //! * [`confidence`]: splitting the user's confidence into the noise and shot parts, Bonferroni;
 //! * [`fidelity`]: the fidelity lower bound (§4);
 //! * [`light_cone`]: Lieb–Robinson walk sums and exposure times `T_i(t)` (§5);
