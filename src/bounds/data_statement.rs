@@ -23,7 +23,9 @@ use ndarray::ArrayView2;
 use rayon::prelude::*;
 
 use super::confidence::Simultaneity;
-use super::data_interval::{betting_interval, empirical_bernstein_interval, MeanMethod};
+use super::data_interval::{
+    betting_interval, empirical_bernstein_columns, empirical_bernstein_interval, MeanMethod,
+};
 use super::global::{cap, PointBounds};
 use super::local::LocalTerms;
 use crate::model::noise::Redrawn;
@@ -218,19 +220,39 @@ fn added_term(inp: &DataInputs, k: usize, s_o: f64) -> f64 {
 pub fn observable_statement(values: ArrayView2<f64>, inp: &DataInputs) -> DataStatement {
     let [a, b] = inp.spectrum;
     let s_o = b - a;
-    // The points are independent of each other: computed in parallel, each from its own
-    // column in realization order, and collected in time order (the same bits on any number
-    // of threads).
+    // The points are independent of each other: their intervals for the mean are computed in
+    // parallel, each from its own column in realization order, and collected in time order
+    // (the same bits on any number of threads).
+    let means: Vec<[f64; 2]> = match inp.method {
+        // Closed form: every column's recurrence advanced row by row, in blocks of columns
+        // on the thread pool (the values are read in storage order; the same bits as column
+        // by column).
+        MeanMethod::EmpiricalBernstein => {
+            let chunk = 64;
+            (0..values.ncols().div_ceil(chunk))
+                .into_par_iter()
+                .flat_map_iter(|c| {
+                    let cols = c * chunk..((c + 1) * chunk).min(values.ncols());
+                    empirical_bernstein_columns(
+                        values.slice(ndarray::s![.., cols]),
+                        a,
+                        b,
+                        inp.alpha_point,
+                    )
+                })
+                .collect()
+        }
+        _ => (0..values.ncols())
+            .into_par_iter()
+            .map(|k| {
+                let column: Vec<f64> = values.column(k).iter().copied().collect();
+                betting_interval(&column, a, b, inp.alpha_point)
+            })
+            .collect(),
+    };
     let points = (0..values.ncols())
-        .into_par_iter()
         .map(|k| {
-            let column: Vec<f64> = values.column(k).iter().copied().collect();
-            let mean_interval = match inp.method {
-                MeanMethod::EmpiricalBernstein => {
-                    empirical_bernstein_interval(&column, a, b, inp.alpha_point)
-                }
-                _ => betting_interval(&column, a, b, inp.alpha_point),
-            };
+            let mean_interval = means[k];
             let added = added_term(inp, k, s_o);
             // Rounded outward by one ulp each; the ideal value lies in the spectrum.
             let interval = [

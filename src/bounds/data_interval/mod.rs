@@ -23,7 +23,7 @@ pub mod empirical_bernstein;
 
 pub use betting::betting_interval;
 pub use clopper_pearson::clopper_pearson;
-pub use empirical_bernstein::empirical_bernstein_interval;
+pub use empirical_bernstein::{empirical_bernstein_columns, empirical_bernstein_interval};
 
 /// Which method gave an interval.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
