@@ -63,7 +63,10 @@ use quassay::outputs::noise_record::to_json_string;
 use quassay::outputs::run_file::{write_run, WriteOptions};
 use quassay::simulate::run::{simulate, Truth};
 
-use crate::util::{binomial_critical, quassay, scenario, scratch, source};
+use crate::util::{
+    binomial_critical, certified, certify_command, certify_in, digest_of, quassay, scenario,
+    scratch, source, write_inputs,
+};
 
 /// Level of every binomial check.
 const LEVEL: f64 = 0.001;
@@ -534,22 +537,6 @@ const BODY_MEMBERS: [&str; 6] = [
 ];
 const OBSERVABLE_MEMBERS: [&str; 3] = ["/data_statement", "/certified_lower", "/certified_upper"];
 
-/// `quassay certify` of the run in `dir` into `name` with `args`; the certificate.
-fn certify_cli(dir: &Path, name: &str, args: &[&str]) -> Value {
-    let out = dir.join(name);
-    quassay()
-        .arg("certify")
-        .arg(dir.join("run.h5"))
-        .arg("--noise")
-        .arg(dir.join("noise.json"))
-        .arg("-o")
-        .arg(&out)
-        .args(args)
-        .assert()
-        .success();
-    serde_json::from_str(&std::fs::read_to_string(&out).unwrap()).unwrap()
-}
-
 /// With `--data-share 0` the body has none of the data statement's members (format 1.0: the
 /// schema of format 1.0 accepts it, and by hand its digest was compared with the build before
 /// the data statement, on both bundled examples and on simulated runs of every redraw mode:
@@ -561,23 +548,13 @@ fn data_share_0_leaves_the_data_statement_out_and_verify_accepts_both_kinds() {
     let case = &cases()[1];
     let mut s = scenario_from_value(&case.scenario).unwrap();
     s.realizations = case.realizations;
-    let sim = simulate(&s, s.seed);
-    write_run(
-        &dir.path().join("run.h5"),
-        &sim.run,
-        &WriteOptions::default(),
-    )
-    .unwrap();
-    std::fs::write(dir.path().join("noise.json"), to_json_string(&s.noise)).unwrap();
+    write_inputs(&s, s.seed, dir.path());
 
-    certify_cli(dir.path(), "off.cert.json", &["--data-share", "0"]);
-    let off = crate::util::certified(&dir.path().join("off.cert.json"));
-    let on = certify_cli(dir.path(), "on.cert.json", &[]);
+    certify_in(dir.path(), "off.cert.json", &["--data-share", "0"], 0);
+    let off = certified(&dir.path().join("off.cert.json"));
+    let on = certify_in(dir.path(), "on.cert.json", &[], 0);
     // The schema does not yet describe format 1.1; the digest is checked all the same.
-    assert_eq!(
-        on["digest"].as_str().unwrap(),
-        crate::util::digest_of(&on["body"])
-    );
+    assert_eq!(on["digest"].as_str().unwrap(), digest_of(&on["body"]));
     for p in BODY_MEMBERS {
         assert!(off["body"].pointer(p).is_none(), "share 0 has {p}");
         assert!(
@@ -610,18 +587,12 @@ fn data_share_0_leaves_the_data_statement_out_and_verify_accepts_both_kinds() {
             .success();
     }
     for share in ["--data-share=1", "--data-share=-0.1", "--data-share=1.5"] {
-        let out = dir.path().join("refused.cert.json");
-        quassay()
-            .arg("certify")
-            .arg(dir.path().join("run.h5"))
-            .arg("--noise")
-            .arg(dir.path().join("noise.json"))
-            .arg("-o")
-            .arg(&out)
+        certify_command(dir.path(), "refused.cert.json")
             .arg(share)
             .assert()
             .code(2)
             .stderr(predicates::str::contains("[0, 1)"));
+        let out = dir.path().join("refused.cert.json");
         assert!(!out.exists(), "{share} wrote a certificate");
     }
 }

@@ -159,6 +159,45 @@ pub fn assert_holds_on_exact_simulation(
 }
 
 // ---------------------------------------------------------------------------------------------
+// Simulated inputs and `quassay certify` on them, shared by the rehearsal and data-statement tests.
+
+/// Simulates `s` with `seed` and writes `run.h5` and `noise.json` (the declared record) into
+/// `dir`, replacing what is there.
+pub fn write_inputs(s: &quassay::inputs::scenario::Scenario, seed: u64, dir: &Path) {
+    let sim = quassay::simulate::run::simulate(s, seed);
+    quassay::outputs::run_file::write_run(
+        &dir.join("run.h5"),
+        &sim.run,
+        &quassay::outputs::run_file::WriteOptions::default(),
+    )
+    .unwrap();
+    std::fs::write(
+        dir.join("noise.json"),
+        quassay::outputs::noise_record::to_json_string(&s.noise),
+    )
+    .unwrap();
+}
+
+/// The command `quassay certify DIR/run.h5 --noise DIR/noise.json -o DIR/NAME`.
+pub fn certify_command(dir: &Path, name: &str) -> assert_cmd::Command {
+    let mut c = quassay();
+    c.arg("certify")
+        .arg(dir.join("run.h5"))
+        .arg("--noise")
+        .arg(dir.join("noise.json"))
+        .arg("-o")
+        .arg(dir.join(name));
+    c
+}
+
+/// [`certify_command`] with `args`, asserting exit `code`; the certificate it wrote (not
+/// checked against the schema: see [`certified`] for that).
+pub fn certify_in(dir: &Path, name: &str, args: &[&str], code: i32) -> Value {
+    certify_command(dir, name).args(args).assert().code(code);
+    serde_json::from_str(&std::fs::read_to_string(dir.join(name)).unwrap()).unwrap()
+}
+
+// ---------------------------------------------------------------------------------------------
 // Invented scenarios and the binomial law, shared by the exact-simulation tests (bounds_exact,
 // data_statement).
 
