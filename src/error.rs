@@ -4,7 +4,7 @@
 //! `/observables/Z_5/values`, or a JSON pointer such as `/sources/0/amplitude`) and a message
 //! that says what is wrong and how to fix it. Readers collect all problems of a file before they
 //! fail, so that a user fixes a file in one round. Every variant of [`Error`] maps to exit code 1
-//! (formats.md, "Exit codes"); usage errors (2) are clap's, negative answers (3) are results,
+//! (docs/robustness.md, "Exit codes"); usage errors (2) are clap's, negative answers (3) are results,
 //! not errors.
 
 use std::fmt;

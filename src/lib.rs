@@ -9,7 +9,12 @@
 //! * [`certificate`]: canonical JSON, hashing and the certificate itself;
 //! * [`outputs`]: writing files atomically (runs, records, certificates);
 //! * [`simulate`]: exact state-vector simulation that produces synthetic runs;
-//! * [`cli`]: the command line, kept thin.
+//! * [`cli`]: the command line, kept thin;
+//! * [`numbers`]: the JSON form of a computed number (below both checks and certificate).
+//!
+//! Each module uses only modules below it: `model`, `error` and `numbers` nothing else;
+//! `inputs` and `bounds` the model; `checks` the bounds; `certificate` the checks, bounds and
+//! inputs; `simulate` the inputs; `outputs` the certificate, inputs and simulator; `cli` all.
 
 pub mod bounds;
 pub mod certificate;
@@ -18,6 +23,7 @@ pub mod cli;
 pub mod error;
 pub mod inputs;
 pub mod model;
+pub mod numbers;
 pub mod outputs;
 pub mod simulate;
 

@@ -9,21 +9,21 @@
 //!
 //! * worst case: `|f_g(t) − f(t)| ≤ E_wc(t)` for every draw (probability one);
 //! * one evolution: the number of draws with `|f_g(t) − f(t)| > E_1(t; p)` stays below the
-//!   critical value of a one-sided binomial test at level 0.001 (bounds.md §3: each draw
+//!   critical value of a one-sided binomial test at level 0.001 (docs/method.md §3: each draw
 //!   exceeds with probability at most `p`, independently);
 //! * averaged trace: the ideal value lies in `[v̄ − E_avg − E_shot, v̄ + E_avg + E_shot]` at
-//!   every time (bounds.md §3, "The claim");
+//!   every time (docs/method.md §3, "The claim and the confidence split");
 //! * fidelity: `F(t) ≥ F_low(t; p)` in all but a binomial allowance of draws, and always
-//!   `F(t) ≥` the worst-case bound (bounds.md §4);
+//!   `F(t) ≥` the worst-case bound (docs/method.md §4);
 //! * Efron–Stein: the sample variance of `f_g(t)` over the draws respects
-//!   `V_noise = Σ δ_i² σ_i² (s_O t)²` (bounds.md §6), up to the sampling error of a sample
+//!   `V_noise = Σ δ_i² σ_i² (s_O t)²` (docs/checks.md), up to the sampling error of a sample
 //!   variance (see [`variance_allowances`]).
 //!
 //! One more case is built so that the global bounds are nearly attained (every source acts on
 //! the observed site): there the measured ratios error/bound are close to one, so a bound that
 //! were too small by a constant factor would fail; in the lattice cases the global bounds are
 //! loose for local observables by about the square root of the number of sources (the ratios
-//! are printed; the light-cone statement of bounds.md §5 is what tightens them).
+//! are printed; the light-cone statement of docs/method.md §5 is what tightens them).
 //!
 //! The binomial critical values are computed exactly from the binomial law and checked against
 //! closed forms and statrs' binomial survival function; the χ² quantile comes from statrs and
@@ -492,7 +492,7 @@ fn point(
 /// Sampling allowances for the sample variance `s²` of `n` independent values in an interval
 /// of length `w`, when the true variance is at most `v`:
 ///
-/// * distribution-free (Maurer and Pontil 2009, Theorem 10, the theorem bounds.md §6 cites;
+/// * distribution-free (Maurer and Pontil 2009, Theorem 10, the theorem docs/checks.md cites;
 ///   statement recalled from memory): `P(√s² > σ + w √(2 ln(1/level)/(n−1))) ≤ level`, so
 ///   `√s² ≤ √v + w √(2 ln(1/level)/(n−1))` unless a one-in-1/level event happened;
 /// * normal theory: `(n−1) s²/σ² ~ χ²_{n−1}` for normal values, so
@@ -728,7 +728,7 @@ fn report(case: &Case, n: usize, m: &Measured) {
     eprint!("{text}");
 }
 
-/// The cases cover every fluctuation route of bounds.md §3 and §4 (the route of `E_1` and of
+/// The cases cover every fluctuation route of docs/method.md §3 and §4 (the route of `E_1` and of
 /// the fidelity bound at the last time, p = 0.05).
 #[test]
 fn the_cases_cover_every_fluctuation_route() {

@@ -1,4 +1,4 @@
-//! Integration tests for `quassay budget` (bounds.md §7).
+//! Integration tests for `quassay budget` (docs/budget.md).
 //!
 //! * Against `certify`: the largest scale factor λ that `budget` returns for the bundled
 //!   invented example `example_runs/chain12` is written into a noise record (amplitude × λ),
@@ -7,7 +7,7 @@
 //!   tolerance. The two programs share the §3 formulas but not the search, the expansion of
 //!   the record (done by certify from the edited file) or the confidence split.
 //! * The √M law: the gain of the single-evolution answer over the worst case, fitted on a
-//!   log-log scale over M = 10 … 10^4 sources, has exponent 1/2 within 0.05 (bounds.md §3: the
+//!   log-log scale over M = 10 … 10^4 sources, has exponent 1/2 within 0.05 (docs/method.md §3: the
 //!   fluctuation grows like √M, the worst case like M).
 
 use serde_json::Value;

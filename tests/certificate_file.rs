@@ -29,7 +29,7 @@ fn certify_fixture(dir: &Path) -> Vec<u8> {
         .arg(dir.join("noise.json"))
         .output()
         .unwrap();
-    // 0: consistent; 3: inconsistent (formats.md); a certificate is written either way.
+    // 0: consistent; 3: inconsistent (docs/robustness.md, "Exit codes"); a certificate is written either way.
     let code = out.status.code();
     assert!(
         matches!(code, Some(0 | 3)),
@@ -43,7 +43,7 @@ fn certify_fixture(dir: &Path) -> Vec<u8> {
 /// The file starts with `{"body":`, the body runs to the first `,\n"digest"` (the canonical
 /// form has no raw line break: RFC 8785 escapes one inside a string as `\n`), and the SHA-256
 /// of that span, by the `sha2` crate, is the recorded digest. The span is the body's JSON,
-/// on one line; the other top-level members follow one per line, in the order of formats.md.
+/// on one line; the other top-level members follow one per line, in the order of docs/certificate.md.
 #[test]
 fn the_body_bytes_in_the_file_hash_to_the_digest() {
     let dir = scratch();

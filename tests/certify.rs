@@ -5,7 +5,7 @@
 //! Every certificate a test produces is checked by [`certified`]: it validates against
 //! `schemas/certificate.schema.json` (draft 2020-12, with the `jsonschema` crate) and its
 //! `digest` is the SHA-256 (FIPS 180-4) of the RFC 8785 form of its body. Numbers are checked
-//! against the NumPy side file of the fixture and against the formulas of bounds.md §3.
+//! against the NumPy side file of the fixture and against the formulas of docs/method.md §3.
 
 use std::path::{Path, PathBuf};
 
@@ -46,7 +46,7 @@ impl Case {
 
     /// `quassay certify run.h5 --noise noise.json ARGS`: must write a certificate (`-o` or the
     /// default `run.cert.json`) that passes [`certified`], and exit 0 if its verdict is
-    /// `consistent` (or `not_tested`), 3 if it is `inconsistent` (formats.md); returns stdout.
+    /// `consistent` (or `not_tested`), 3 if it is `inconsistent` (docs/robustness.md, "Exit codes"); returns stdout.
     fn certify(&self, args: &[&str]) -> String {
         let out = quassay()
             .arg("certify")
@@ -167,7 +167,7 @@ fn the_certificate_states_the_numbers_numpy_stored_and_hoeffdings_shot_term() {
     let e_shot = numbers(&z["e_shot"]);
     let times = numbers(&cert["body"]["run"]["times"]);
     assert_eq!(times, numbers(&side["times"]));
-    // Simultaneous over T·K = 5·2 points, p = α = 0.05/2 (bounds.md §3): α per point = 0.0025.
+    // Simultaneous over T·K = 5·2 points, p = α = 0.05/2 (docs/method.md §3): α per point = 0.0025.
     let alpha = 0.025 / 10.0;
     let split = &cert["body"]["claim"]["probability_split"];
     assert_eq!(split["points"], 10);
@@ -384,7 +384,7 @@ fn an_input_outside_the_folder_is_recorded_by_name_and_verified_with_inputs() {
 
 #[test]
 fn the_same_noise_in_mhz_and_in_rad_per_us_gives_the_same_bounds() {
-    // units-rad-per-us.json holds the amplitudes of units-mhz.json times 2π (formats.md:
+    // units-rad-per-us.json holds the amplitudes of units-mhz.json times 2π (docs/noise-record.md:
     // a cyclic frequency f is the angular frequency 2π f).
     let a = Case::new("units-mhz.json");
     let b = Case::new("units-rad-per-us.json");

@@ -4,7 +4,7 @@
 //! `tests/reference/hostile/make_hostile.py` (byte edits of the h5py fixture, located with h5py
 //! and the HDF5 File Format Specification's superblock layout; one-change edits of a valid
 //! noise record). Cases that need a fresh certificate, a FIFO or a folder are made here. Every
-//! case runs the binary and checks: the exit code of formats.md ("Exit codes": 1 bad input, 3 a
+//! case runs the binary and checks: the exit code of docs/robustness.md ("Exit codes": 1 bad input, 3 a
 //! certificate that does not reproduce), a message naming the file and the problem, no panic,
 //! no hang (a 60 s limit per run, far above the milliseconds each takes), and that the folder
 //! holding the inputs and the output gained no entry, temporary files included.

@@ -1,7 +1,7 @@
-//! Integration tests of the light-cone statement in certificates (bounds.md §5,
-//! docs/method.md §5): simulated runs (invented scenarios) certified by the binary, checked
-//! against the exact simulation that made them (`truth.h5`: the ideal trace and the exact
-//! expectation of every realization's noise draw), against the schema, and re-verified.
+//! Integration tests of the light-cone statement in certificates (docs/method.md §5):
+//! simulated runs (invented scenarios) certified by the binary, checked against the exact
+//! simulation that made them (`truth.h5`: the ideal trace and the exact expectation of every
+//! realization's noise draw), against the schema, and re-verified.
 //!
 //! The chain is long enough, and its couplings weak enough, that the Lieb–Robinson light cone
 //! of the middle site is much smaller than the chain at the early times: there the light-cone
@@ -102,7 +102,7 @@ fn a_local_observable_in_a_long_chain_gets_the_smaller_light_cone_statement_and_
     let times = numbers(&cert["body"]["run"]["times"]);
     let n_t = times.len();
 
-    // Global V_noise of one draw, computed here from the record (bounds.md §6 with e = s_O t):
+    // Global V_noise of one draw, computed here from the record (docs/checks.md with e = s_O t):
     // Σ δ² σ² (s_O t)², σ² = 1/3 for uniform, 1 for two-point; δ = 2π · amplitude in rad/us.
     let two_pi = 2.0 * std::f64::consts::PI;
     let (d_site, d_bond) = (two_pi * 2e-3, two_pi * 0.5e-3);

@@ -4,11 +4,11 @@
 //! and exact simulations; these properties check, over randomly drawn noise records (every
 //! family, amplitudes over many decades, one to a dozen sources, every redraw mode, mixed
 //! records), times and confidence levels, the structural facts that docs/method.md §3–§5 and
-//! §7 rely on: every bound is non-negative and not NaN (finite where the spec caps it), no bound
-//! falls when an amplitude, the time or the set of sources grows, `E_avg ≤ E_1` at equal
+//! docs/budget.md rely on: every bound is non-negative and not NaN (finite where a bound is
+//! capped), no bound falls when an amplitude, the time or the set of sources grows, `E_avg ≤ E_1` at equal
 //! failure probability, a stricter confidence never gives a smaller bound, and the light-cone
 //! statement never exceeds the global one over the same sources. The planning bisection
-//! (bounds.md §7) is only correct if the monotonicity holds.
+//! (docs/budget.md) is only correct if the monotonicity holds.
 //!
 //! The reference is the mathematics of docs/method.md (each property says which step); the
 //! comparisons are exact (no tolerance) unless a comment says why one is needed. Canonical
@@ -42,7 +42,7 @@ fn log_uniform(lo: f64, hi: f64) -> impl Strategy<Value = f64> {
     (lo..=hi).prop_map(|x| 10f64.powf(x))
 }
 
-/// Every family of bounds.md §2 with parameters as the noise-record reader accepts them
+/// Every family of docs/method.md §2 with parameters as the noise-record reader accepts them
 /// (sigma, cutoff > 0; lower ≤ 0 ≤ upper; std ≤ √(−lower·upper); symmetric ⇒ lower = −upper).
 fn family() -> impl Strategy<Value = Family> {
     prop_oneof![

@@ -9,7 +9,7 @@ use std::process::Command;
 
 use serde_json::Value;
 
-use crate::util::{entries, quassay, repo, scratch};
+use crate::util::{body, entries, quassay, repo, scratch};
 
 /// Where `.ci/run` installs Debian's chromium (`apt-get install -y chromium`).
 const CHROMIUM: &str = "/usr/bin/chromium";
@@ -31,11 +31,6 @@ fn certify_with_report(dir: &Path) -> (PathBuf, PathBuf) {
         .assert()
         .success();
     (cert, report)
-}
-
-fn body(cert: &Path) -> Value {
-    let v: Value = serde_json::from_str(&std::fs::read_to_string(cert).unwrap()).unwrap();
-    v["body"].clone()
 }
 
 /// The page is self-contained (nothing a browser would fetch, no script) and holds one SVG

@@ -2,13 +2,13 @@
 //! the bundled invented example `example_runs/chain12` (an exact simulation, see its
 //! scenario.json). The known answers are the certificate's own half-widths
 //! `e_avg + e_shot`: a claim just above the largest is supported (exit 0), one just below is
-//! not (exit 3), as bounds.md §3 "The claim" defines the interval.
+//! not (exit 3), as docs/method.md §3, "The claim and the confidence split", defines the interval.
 
 use std::path::{Path, PathBuf};
 
 use serde_json::Value;
 
-use crate::util::{quassay, repo, scratch};
+use crate::util::{body, quassay, repo, scratch};
 
 /// Copies the example to `dir` and certifies it; returns the certificate's path.
 fn certificate(dir: &Path) -> PathBuf {
@@ -23,11 +23,6 @@ fn certificate(dir: &Path) -> PathBuf {
         .assert()
         .success();
     dir.join("run.cert.json")
-}
-
-fn body(cert: &Path) -> Value {
-    let v: Value = serde_json::from_str(&std::fs::read_to_string(cert).unwrap()).unwrap();
-    v["body"].clone()
 }
 
 /// The largest half-width over the observables named (all if `None`) and times ≤ `until`.

@@ -2,8 +2,8 @@
 //!
 //! Outside references: SciPy's `expm_multiply` on NumPy Kronecker-product Hamiltonians
 //! (`tests/reference/propagation/make_fixtures.py`, committed with its output `cases.json`),
-//! and the closed form of a spin precessing about Z (bounds.md, worked example "one site, no
-//! Hamiltonian"). All scenarios are invented.
+//! and the closed form of a spin precessing about Z (the one-site example of
+//! docs/method.md §3). All scenarios are invented.
 
 use std::path::Path;
 
@@ -258,7 +258,7 @@ fn the_run_file_carries_the_bond_norm_terms_and_the_declared_record() {
 
 #[test]
 fn a_detuned_spin_dephases_exactly_as_the_closed_form_says() {
-    // One site, H = 0, |+⟩, noise a·g·Z: ⟨X(t)⟩ = cos(2 a g t) (bounds.md, worked example).
+    // One site, H = 0, |+⟩, noise a·g·Z: ⟨X(t)⟩ = cos(2 a g t) (docs/method.md §3, "Check").
     let mut v = chain_scenario();
     v["lattice"] = json!({"geometry": "chain", "shape": [1], "boundary": "open"});
     v["hamiltonian"] = json!({"J": 0.0, "anisotropy": 0.0});

@@ -1,5 +1,5 @@
 //! Integration tests of the term-by-term statement for observables that are sums of local
-//! terms (bounds.md §5, "Observables that are sums of local terms"; docs/method.md §5):
+//! terms (docs/method.md §5, "Sums of local terms, term by term"):
 //! invented scenarios simulated by `quassay simulate`, certified by the binary, checked against
 //! the exact simulation that made them (`truth.h5`: the ideal trace and the exact expectation
 //! of every realization's noise draw), against the schema, and re-verified.

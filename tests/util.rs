@@ -86,6 +86,14 @@ pub fn certified(path: &Path) -> serde_json::Value {
     cert
 }
 
+/// The body of the certificate at `cert`, as JSON (read only: no schema or digest check, see
+/// [`certified`] for that).
+pub fn body(cert: &Path) -> serde_json::Value {
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(cert).unwrap()).unwrap();
+    v["body"].clone()
+}
+
 /// A column of numbers of a certificate body.
 pub fn numbers(v: &serde_json::Value) -> Vec<f64> {
     v.as_array()

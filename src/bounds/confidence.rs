@@ -1,5 +1,5 @@
 //! Splitting the user's confidence `1 − ε` into the noise part `p` and the shot part `α`
-//! (bounds.md §3, "The claim"), and the Bonferroni correction over the recorded points.
+//! (docs/method.md §3, "The claim and the confidence split"), and the Bonferroni correction over the recorded points.
 //!
 //! Default `p = α = ε/2`; all of ε goes to the part that remains when the other is absent
 //! (no shot term, or no fluctuation term, as when the noise is redrawn every shot). By default

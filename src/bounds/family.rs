@@ -1,4 +1,4 @@
-//! Per-family constants of one noise source (bounds.md §2, docs/method.md §2).
+//! Per-family constants of one noise source (docs/method.md §2).
 //!
 //! For the dimensionless, zero-mean variable `g` of one source this module gives the bound `b`
 //! on `|g|`, the standard deviation `σ`, the support width `w`, the Lipschitz constant `κ` of a
@@ -18,7 +18,7 @@ use crate::model::noise::Family;
 /// itself is accurate to about 1e-14 relative, see [`truncated_normal_cosh_minus_one`]).
 const QUADRATURE_MARGIN: f64 = 1e-12;
 
-/// The constants of bounds.md §2 for one family (dimensionless, before `δ_i`).
+/// The constants of docs/method.md §2 for one family (dimensionless, before `δ_i`).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct FamilyConstants {
     /// Bound on `|g|`; `f64::INFINITY` if unbounded.
@@ -33,7 +33,7 @@ pub struct FamilyConstants {
     pub symmetric: bool,
 }
 
-/// The constants of a family (bounds.md §2 table).
+/// The constants of a family (docs/method.md §2 table).
 ///
 /// Preconditions (checked by the noise-record reader): `sigma > 0`, `cutoff > 0`,
 /// `lower ≤ 0 ≤ upper`, `std ≥ 0`; all finite.
@@ -111,12 +111,9 @@ pub fn phi_minus_one(f: &Family, y: f64) -> f64 {
             std,
             symmetric,
         } => {
-            let b = lower.abs().max(upper.abs());
-            if b == 0.0 || std == 0.0 {
+            let Some((a, z)) = bounded_scale(lower, upper, std, y) else {
                 return 0.0;
-            }
-            let a = (std / b) * (std / b);
-            let z = y * b;
+            };
             if symmetric {
                 a * cosh_minus_one(z)
             } else {
@@ -156,12 +153,9 @@ pub fn ln_phi(f: &Family, y: f64) -> f64 {
             std,
             symmetric,
         } => {
-            let b = lower.abs().max(upper.abs());
-            if b == 0.0 || std == 0.0 {
+            let Some((a, z)) = bounded_scale(lower, upper, std, y) else {
                 return 0.0;
-            }
-            let a = (std / b) * (std / b);
-            let z = y * b;
+            };
             if z < 600.0 {
                 return phi_minus_one(f, y).ln_1p();
             }
@@ -177,6 +171,16 @@ pub fn ln_phi(f: &Family, y: f64) -> f64 {
             }
         }
     }
+}
+
+/// The bounded family's `a = σ²/b²` and `z = y·b` (`b = max(|lower|, |upper|)`), shared by
+/// [`phi_minus_one`] and [`ln_phi`]; `None` when `b = 0` or `σ = 0`, where `φ ≡ 1`.
+fn bounded_scale(lower: f64, upper: f64, std: f64, y: f64) -> Option<(f64, f64)> {
+    let b = lower.abs().max(upper.abs());
+    if b == 0.0 || std == 0.0 {
+        return None;
+    }
+    Some(((std / b) * (std / b), y * b))
 }
 
 /// `sinh(y)/y − 1`, by its Taylor series below 1 (no cancellation), directly above.
@@ -386,7 +390,7 @@ mod tests {
 
     #[test]
     fn uniform_and_two_point_constants_are_the_closed_forms() {
-        // Closed forms (bounds.md §2): uniform σ = 1/√3, κ = √(2/π); two-point σ = 1.
+        // Closed forms (docs/method.md §2): uniform σ = 1/√3, κ = √(2/π); two-point σ = 1.
         let u = constants(&Family::Uniform);
         assert_eq!((u.b, u.width), (1.0, 2.0));
         assert!(rel(u.sigma, 0.577_350_269_189_625_8) < 1e-15);

@@ -1,11 +1,11 @@
-//! The fidelity lower bound for one noisy evolution from a pure state (bounds.md §4).
+//! The fidelity lower bound for one noisy evolution from a pure state (docs/method.md §4).
 //!
 //! `‖ψ(t) − ψ_g(t)‖ ≤ D(g) = ∫_0^t ‖Δ_g ψ(s)‖ ds` along the ideal trajectory, and
 //! `F ≥ (1 − D²/2)²` when `D ≤ √2`. With failure probability `p` (one-sided):
 //! `D_p = t (Σ δ_i m_i + √(Σ δ_i² σ_i²) + fluct)`, where the fluctuation of `D` around its
 //! mean comes from Gaussian concentration (route G: `√(Σ δ_i² κ_i²) √(2 ln(1/p))`), bounded
 //! differences (route D: `√(Σ δ_i² w_i²) √(ln(1/p)/2)`), or the two groups with `p/2` each
-//! (an extension of bounds.md §4 by the same argument as the mixed route of §3,
+//! (an extension of docs/method.md §4 by the same argument as the mixed route of §3,
 //! docs/method.md §4; the only route where neither G nor D applies to every source, and a
 //! candidate beside them otherwise), the smallest kept. Worst case
 //! `D_wc = t Σ δ_i (b_i + m_i)`. Sums are over non-negative terms in instance order.

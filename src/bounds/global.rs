@@ -1,9 +1,9 @@
-//! The bounds of bounds.md §3 at one (time, observable) point, as pure functions.
+//! The bounds of docs/method.md §3 at one (time, observable) point, as pure functions.
 //!
 //! Every term is written on per-source *sensitivities* `e_i`: the factor that multiplies
 //! `δ_i` in the Lipschitz bound `|∂f/∂g_i| ≤ δ_i e_i`. For the global statement
 //! `e_i = s_O · t` for every source ([`global_sensitivities`]); the light-cone statement
-//! (bounds.md §5) passes `e_i = E_i(t) ≤ s_O t` and reuses the same functions unchanged.
+//! (docs/method.md §5) passes `e_i = E_i(t) ≤ s_O t` and reuses the same functions unchanged.
 //!
 //! Floating point: every sum here has non-negative terms and is summed in instance order
 //! (deterministic; plain ordered summation of non-negative terms has relative error at most
@@ -37,7 +37,7 @@ impl SourceData {
     }
 }
 
-/// The route that gave a fluctuation term (bounds.md §3).
+/// The route that gave a fluctuation term (docs/method.md §3).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum FluctuationRoute {
     /// Gaussian concentration of Lipschitz functions (every source has a κ).
@@ -327,7 +327,7 @@ impl FluctuationScale {
     }
 }
 
-/// The fluctuation term of the averaged value (bounds.md §3 table): `None` when g is redrawn
+/// The fluctuation term of the averaged value (docs/method.md §3 table): `None` when g is redrawn
 /// every shot (the shot term covers it), `r/√R` for every realization, `r` for once.
 pub fn averaged_fluctuation(redrawn: Redrawn, r: f64, realizations: usize) -> Option<f64> {
     match redrawn {
@@ -411,7 +411,7 @@ pub struct PointInputs<'a> {
     pub p_single: f64,
 }
 
-/// All terms of bounds.md §3 at one point. Every field is non-negative; `e_one`, `e_avg` are
+/// All terms of docs/method.md §3 at one point. Every field is non-negative; `e_one`, `e_avg` are
 /// capped at `s_O`.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct PointBounds {
@@ -434,7 +434,7 @@ pub struct PointBounds {
     pub half_width: f64,
 }
 
-/// Evaluates every term of bounds.md §3 at one point.
+/// Evaluates every term of docs/method.md §3 at one point.
 pub fn evaluate_point(inp: &PointInputs) -> PointBounds {
     let owned;
     let sens: &[f64] = match inp.sensitivities {
@@ -524,7 +524,7 @@ mod tests {
         sxy / sxx
     }
 
-    /// Worked example of bounds.md (exact closed form of the one-site Ramsey run, H = 0,
+    /// The check of docs/method.md §3 (exact closed form of the one-site Ramsey run, H = 0,
     /// O = X, g uniform): the exact bias 1 − sin(2δt)/(2δt) never exceeds the bound, and the
     /// ratio tends to 1 as δt → 0 (both ≈ (2δt)²/6).
     #[test]

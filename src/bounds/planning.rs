@@ -1,4 +1,4 @@
-//! The inverse questions of planning (bounds.md §7): the largest scale factor on the noise
+//! The inverse questions of planning (docs/budget.md): the largest scale factor on the noise
 //! amplitudes, the longest time, or the largest system that keeps an error bound under a
 //! target, each beside the worst-case answer.
 //!
@@ -380,7 +380,7 @@ mod tests {
         assert_eq!(a, Answer::Unlimited);
     }
 
-    /// The gain of `E_1` over the worst case grows like √M (bounds.md §7).
+    /// The gain of `E_1` over the worst case grows like √M (docs/budget.md).
     #[test]
     fn the_gain_grows_like_the_square_root_of_the_number_of_sources() {
         let set = setting(None);

@@ -1,4 +1,4 @@
-//! Standard-normal quantiles, for the normal-approximation shot term (bounds.md §3).
+//! Standard-normal quantiles, for the normal-approximation shot term (docs/method.md §3).
 //!
 //! Start from statrs' `erfc_inv` (about 1e-10 relative), then refine with Newton steps on the
 //! upper-tail equation `Q(z) = q` with the accurate tail of [`super::special`] (written on the

@@ -1,5 +1,5 @@
 //! Every bound of a run at once: each observable at each recorded time, and the fidelity bound
-//! at each time (bounds.md §3–§5). Pure: it takes the checked models and returns numbers.
+//! at each time (docs/method.md §3–§5). Pure: it takes the checked models and returns numbers.
 //!
 //! Per observable and time the point reports one *statement*: the global one (§3), or the
 //! light-cone one (§5) when it is smaller ([`super::local::combine`]). The walk graph is built
@@ -28,7 +28,9 @@ use super::local::{
     combine_all, local_bounds_with, term_bounds_cached, LocalInputs, LocalTerms, Statement,
     TermByTerm,
 };
-use crate::model::{Hamiltonian, Lattice, NoiseModel, Observable, Run, Shots, Terms, TimeUnit};
+use crate::model::{Hamiltonian, Lattice, NoiseModel, Run, Terms, TimeUnit};
+
+pub use crate::model::sums::{ObservableSums, ShotSums};
 
 /// Largest number of numbers (exposure values, region sources × times, plus the region
 /// shapes, summed over the shapes kept) held for reuse: 2^24, 128 MiB. Past it the kept
@@ -221,65 +223,6 @@ impl RunBounds {
             (0, _) => "global statement at every time".to_string(),
             (l, a) if l == a => "light-cone statement at every time".to_string(),
             (l, a) => format!("light-cone statement at {l} of {a} points, global elsewhere"),
-        }
-    }
-}
-
-/// What the bounds need of one observable's data: per time, the sum of the values over the
-/// realizations and the shot information, all summed in realization order. A streaming
-/// reader accumulates these block by block; [`ObservableSums::of`] takes them from a whole
-/// observable. Both give the same bits (the same additions in the same order).
-#[derive(Debug, Clone, PartialEq)]
-pub struct ObservableSums {
-    /// R, the number of realizations.
-    pub realizations: usize,
-    /// `Σ_r v[r, k]` per time `k`.
-    pub value_sums: Vec<f64>,
-    /// The shot information.
-    pub shots: ShotSums,
-}
-
-/// The shot information behind the shot term.
-#[derive(Debug, Clone, PartialEq)]
-pub enum ShotSums {
-    /// The same count at every point (Hoeffding).
-    Uniform(u64),
-    /// `Σ_r 1/S[r, k]` per time (Hoeffding; every count ≥ 1).
-    InverseCounts(Vec<f64>),
-    /// `Σ_r se[r, k]²` per time (normal approximation; standard errors take precedence over
-    /// shot counts).
-    SquaredErrors(Vec<f64>),
-}
-
-impl ObservableSums {
-    /// The sums of an observable held in memory.
-    pub fn of(o: &Observable) -> ObservableSums {
-        let column_sums = |a: &ndarray::Array2<f64>, f: fn(f64) -> f64| -> Vec<f64> {
-            let mut sums = vec![0.0; a.ncols()];
-            for row in a.rows() {
-                for (s, &x) in sums.iter_mut().zip(row.iter()) {
-                    *s += f(x);
-                }
-            }
-            sums
-        };
-        let shots = match (&o.stderr, &o.shots) {
-            (Some(e), _) => ShotSums::SquaredErrors(column_sums(e, |x| x * x)),
-            (None, Shots::Uniform(s)) => ShotSums::Uniform(*s),
-            (None, Shots::PerPoint(a)) => {
-                let mut sums = vec![0.0; a.ncols()];
-                for row in a.rows() {
-                    for (s, &n) in sums.iter_mut().zip(row.iter()) {
-                        *s += 1.0 / n as f64;
-                    }
-                }
-                ShotSums::InverseCounts(sums)
-            }
-        };
-        ObservableSums {
-            realizations: o.values.nrows(),
-            value_sums: column_sums(&o.values, |x| x),
-            shots,
         }
     }
 }
@@ -590,6 +533,7 @@ pub fn evaluate_run(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::model::Observable;
     use std::path::Path;
 
     /// Observables on the same sites with the same spread share their light-cone terms (the

@@ -1,5 +1,5 @@
 //! The certificate's body: everything that follows from the inputs and the options, and
-//! nothing else (formats.md, "Certificate"). Its RFC 8785 form is what the digest covers.
+//! nothing else (docs/certificate.md). Its RFC 8785 form is what the digest covers.
 //!
 //! Numbers that are infinite (a worst case with an unbounded family, say) have no JSON form;
 //! they are written as the string `"unbounded"`. Per-time quantities are stored as columns
@@ -7,7 +7,6 @@
 
 use serde_json::{json, Map, Value};
 
-use super::certify::Loaded;
 use super::claim;
 use super::record::{DatasetDigest, FileRecord};
 use crate::bounds::confidence::Simultaneity;
@@ -48,17 +47,19 @@ impl Default for CertifyOptions {
     }
 }
 
-/// A finite number as a JSON number; an infinite one as `"unbounded"`; NaN as `"undefined"`.
-pub fn num(x: f64) -> Value {
-    match serde_json::Number::from_f64(x) {
-        Some(n) => Value::Number(n),
-        None if x.is_nan() => Value::String("undefined".into()),
-        None => Value::String("unbounded".into()),
-    }
-}
+pub use crate::numbers::num;
 
 fn column(values: impl Iterator<Item = f64>) -> Value {
     Value::Array(values.map(num).collect())
+}
+
+/// Everything a certificate is computed from, read and checked (the run without its R × T
+/// datasets, which the bounds and digests consumed as they streamed by).
+#[derive(Debug, Clone)]
+pub struct Loaded {
+    pub run: RunOutline,
+    pub record: NoiseRecord,
+    pub model: NoiseModel,
 }
 
 /// The inputs as recorded.

@@ -34,14 +34,7 @@ use crate::inputs::run_file::{
 };
 use crate::model::{NoiseModel, NoiseRecord};
 
-/// Everything a certificate is computed from, read and checked (the run without its R × T
-/// datasets, which the bounds and digests consumed as they streamed by).
-#[derive(Debug, Clone)]
-pub struct Loaded {
-    pub run: RunOutline,
-    pub record: NoiseRecord,
-    pub model: NoiseModel,
-}
+pub use super::body::Loaded;
 
 /// Reads and checks the run and the noise record, and expands the record against the run.
 pub fn load_inputs(run_path: &Path, noise_path: &Path) -> Result<Loaded> {
@@ -79,7 +72,7 @@ fn expand(
 pub struct Computed {
     pub loaded: Loaded,
     pub bounds: RunBounds,
-    /// The consistency checks of the data against the record (bounds.md §6).
+    /// The consistency checks of the data against the record (docs/checks.md).
     pub checks: ChecksReport,
     pub body: Value,
 }
@@ -609,7 +602,11 @@ mod tests {
         let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference");
         let run_path = root.join("h5py/run_f32_gzip.h5");
         let noise_path = root.join("noise/valid/chain-detuning.json");
-        let options = CertifyOptions::default();
+        // The model statement alone, as `evaluate_run` computes it.
+        let options = CertifyOptions {
+            data_share: 0.0,
+            ..CertifyOptions::default()
+        };
         let c = compute_body(&run_path, &noise_path, "r".into(), "n".into(), &options).unwrap();
         let run = crate::inputs::run_file::read_run(&run_path).unwrap();
         let expected = super::super::record::dataset_digests(&run);

@@ -1,7 +1,7 @@
 //! The certificate's words: the claim per observable, the assumptions and what is not covered.
 //!
 //! These sentences are part of the body (so they are covered by the digest) and must never say
-//! more than the mathematics gives (bounds.md §1 and §3, "The claim").
+//! more than the mathematics gives (docs/method.md §1 and §3, "The claim and the confidence split").
 
 use crate::bounds::confidence::Simultaneity;
 
@@ -41,7 +41,7 @@ fn claim_only(observable: &str, confidence: f64, simultaneity: Simultaneity) -> 
     }
 }
 
-/// What the bounds assume (bounds.md §1).
+/// What the bounds assume (docs/method.md §1).
 pub fn assumptions() -> Vec<&'static str> {
     vec![
         "The hardware evolves under the target Hamiltonian plus the noise record's sources: H(g) = H + sum_i delta_i (mu_i + g_i) V_i, constant during one evolution.",
@@ -60,11 +60,13 @@ pub const DATA_ASSUMPTION: &str = "For the data statement: the realizations of e
 /// disjoint at some times: no interval is certified there.
 pub fn disjoint_sentence(time_indices: &[usize]) -> String {
     format!(
-        " At time indices {time_indices:?} the model statement and the data statement do not          overlap, which happens with probability at most epsilon if the noise record is right;          no interval is certified there."
+        " At time indices {time_indices:?} the model statement and the data statement do not \
+         overlap, which happens with probability at most epsilon if the noise record is right; \
+         no interval is certified there."
     )
 }
 
-/// What the model does not cover, stated in every certificate (bounds.md §1).
+/// What the model does not cover, stated in every certificate (docs/method.md §1).
 pub fn not_covered() -> Vec<&'static str> {
     vec![
         "Decoherence and other incoherent (Markovian) errors.",

@@ -17,6 +17,9 @@ use super::body::{FORMAT, FORMAT_VERSION};
 use super::canonical::{canonical_sha256_hex, write_canonical, CanonicalWriteError};
 use crate::error::{Error, InputKind, Problem, Result};
 
+/// What a certificate is, for messages about a path that is not one.
+pub const CERTIFICATE: &str = "a certificate (JSON, format quassay-certificate v1)";
+
 /// A sealed certificate.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Certificate {
@@ -36,7 +39,7 @@ const DIGEST_METHOD: &str = "SHA-256 of the RFC 8785 (JSON Canonicalization Sche
 
 /// The error for a body without a canonical form (a `Value` cannot hold NaN or infinity, so
 /// this is not expected).
-fn non_finite() -> Error {
+pub(crate) fn non_finite() -> Error {
     Error::Options("internal: the certificate body holds a non-finite number".into())
 }
 
@@ -73,9 +76,11 @@ fn write_document(
     Ok(digest)
 }
 
-/// [`write_document`] to the temporary `tmp` standing for `path`, through a buffer: the text
-/// is never held whole.
-fn write_document_file(
+/// Writes the file's text (the layout of `write_document` above) to the temporary `tmp`
+/// standing for `path`, through a buffer: the text is never held whole. The digest is the given
+/// one or, if `None`, computed as the body is written; it is returned. The atomic write around
+/// it is [`crate::outputs::certificate_file`].
+pub fn write_document_file(
     body: &Value,
     digest: Option<&str>,
     envelope: &Value,
@@ -107,28 +112,6 @@ impl Certificate {
         })
     }
 
-    /// Seals `body` and writes the certificate to `path` as [`Certificate::write_to`] does:
-    /// the same file as `seal` followed by `write_to`, but the body is serialised once, its
-    /// canonical bytes going to the file and to SHA-256 as they are produced.
-    pub fn seal_and_write(
-        body: Value,
-        envelope: Value,
-        path: &Path,
-        force: bool,
-    ) -> Result<Certificate> {
-        let mut digest = None;
-        crate::outputs::atomic::write_file(path, force, |tmp| {
-            digest = Some(write_document_file(&body, None, &envelope, tmp, path)?);
-            Ok(())
-        })?;
-        let digest = digest.ok_or_else(non_finite)?;
-        Ok(Certificate {
-            body,
-            digest,
-            envelope,
-        })
-    }
-
     /// The file's text (see [`Certificate::write_file_text`]).
     pub fn to_file_text(&self) -> String {
         let mut bytes = Vec::new();
@@ -149,19 +132,10 @@ impl Certificate {
         }
     }
 
-    /// Writes the file text to `path` atomically ([`crate::outputs::atomic::write_file`]),
-    /// streamed through a buffer: the text is never held whole in memory. Without `force`, an
-    /// existing `path` is an error and is left untouched.
-    pub fn write_to(&self, path: &Path, force: bool) -> Result<()> {
-        crate::outputs::atomic::write_file(path, force, |tmp| {
-            write_document_file(&self.body, Some(&self.digest), &self.envelope, tmp, path).map(drop)
-        })
-    }
-
     /// Reads a certificate file; problems of its outer structure are input errors.
     pub fn read(path: &Path) -> Result<Certificate> {
         // A regular file only (a FIFO would block the read forever).
-        let bytes = crate::inputs::regular::read_regular(path, super::verify::CERTIFICATE)?;
+        let bytes = crate::inputs::regular::read_regular(path, CERTIFICATE)?;
         Certificate::from_bytes(&bytes).map_err(|problems| Error::Input {
             kind: InputKind::Certificate,
             file: path.to_path_buf(),
@@ -290,24 +264,6 @@ pub fn rfc3339_from_unix(secs: u64) -> String {
 mod tests {
     use super::*;
 
-    /// Sealing while writing gives the file, digest and certificate of sealing first and
-    /// writing afterwards, and refuses an existing file without `force` just the same.
-    #[test]
-    fn sealing_while_writing_gives_the_same_file() {
-        let dir = tempfile::tempdir().unwrap();
-        let body = json!({"z": [1, 2.5, -0.0, 1e-7], "a": {"b": "ü\u{2028}"}});
-        let env = json!({"host": "h"});
-        let (one, two) = (dir.path().join("one.json"), dir.path().join("two.json"));
-        let a = Certificate::seal(body.clone(), env.clone()).unwrap();
-        a.write_to(&one, false).unwrap();
-        let b = Certificate::seal_and_write(body.clone(), env.clone(), &two, false).unwrap();
-        assert_eq!(a, b);
-        assert_eq!(std::fs::read(&one).unwrap(), std::fs::read(&two).unwrap());
-        assert!(Certificate::seal_and_write(body.clone(), env.clone(), &two, false).is_err());
-        Certificate::seal_and_write(body, env, &two, true).unwrap();
-        assert_eq!(std::fs::read(&one).unwrap(), std::fs::read(&two).unwrap());
-    }
-
     #[test]
     fn unix_times_format_as_rfc_3339() {
         // Reference points: the Unix epoch; 2000-03-01 (after a leap day of a century year
@@ -321,7 +277,7 @@ mod tests {
         );
     }
 
-    /// The file's text is the layout of formats.md's certificate, byte for byte: the body's
+    /// The file's text is the layout of docs/certificate.md, "The file", byte for byte: the body's
     /// canonical form (exactly the bytes hashed) after `{"body":`, then the other members one
     /// per line; as JSON it is the whole document. The body's byte span, found by a plain
     /// byte search, hashes (SHA-256, FIPS 180-4, tested in `hash`) to `digest`.
@@ -363,17 +319,6 @@ mod tests {
         let start = "{\"body\":".len();
         let end = text.find(",\n\"digest\"").unwrap();
         assert_eq!(sha256_hex(&text.as_bytes()[start..end]), c.digest);
-        // Written to a file: the same bytes, read back as the same certificate; not over an
-        // existing file without force.
-        let dir = tempfile::tempdir().unwrap();
-        let path = dir.path().join("c.json");
-        c.write_to(&path, false).unwrap();
-        assert_eq!(std::fs::read_to_string(&path).unwrap(), want);
-        let read = Certificate::read(&path).unwrap();
-        assert_eq!((&read.body, &read.digest), (&body, &c.digest));
-        assert!(read.digest_matches());
-        assert!(c.write_to(&path, false).is_err());
-        c.write_to(&path, true).unwrap();
     }
 
     /// A certificate in the earlier layout (the whole document pretty-printed by serde_json,

@@ -38,6 +38,41 @@ fn column(obs: &Value, k: usize, name: &str, problems: &mut Vec<Problem>) -> Vec
     }
 }
 
+/// `max(mean − certified_lower, certified_upper − mean)` per time, when the observable has a
+/// data statement (format 1.1); a null end (disjoint statements) gives NaN.
+fn certified_reach(
+    o: &Value,
+    k: usize,
+    n_times: usize,
+    problems: &mut Vec<Problem>,
+) -> Option<Vec<f64>> {
+    o.get("certified_lower")?;
+    let mean = column(o, k, "mean", problems);
+    let ends = |name: &str, problems: &mut Vec<Problem>| -> Vec<Option<f64>> {
+        match o[name].as_array() {
+            Some(a) if a.len() == n_times => a.iter().map(Value::as_f64).collect(),
+            _ => {
+                problems.push(Problem::new(
+                    format!("/body/observables/{k}/{name}"),
+                    format!("is not an array of {n_times} numbers or nulls"),
+                ));
+                Vec::new()
+            }
+        }
+    };
+    let lower = ends("certified_lower", problems);
+    let upper = ends("certified_upper", problems);
+    Some(
+        mean.iter()
+            .zip(lower.iter().zip(&upper))
+            .map(|(&m, (l, u))| match (l, u) {
+                (Some(l), Some(u)) => (m - l).max(u - m),
+                _ => f64::NAN,
+            })
+            .collect(),
+    )
+}
+
 /// One observable's certified numbers, per recorded time.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ObservableRows {
@@ -48,12 +83,21 @@ pub struct ObservableRows {
     pub e_one: Vec<f64>,
     pub statement_used: Vec<String>,
     pub shot_approximate: bool,
+    /// Format 1.1, with the data statement: per time, how far the certified interval reaches
+    /// from the reported mean, `max(mean − certified_lower, certified_upper − mean)`; NaN
+    /// where the model and data statements are disjoint (nothing is certified there).
+    pub certified_reach: Option<Vec<f64>>,
 }
 
 impl ObservableRows {
-    /// `E_avg + E_shot` at time index `k`: the certified half-width.
+    /// The certified half-width at time index `k`: `E_avg + E_shot`, or with a data statement
+    /// the reach of the certified interval from the mean (never larger, since the certified
+    /// interval lies inside the model's).
     pub fn half_width(&self, k: usize) -> f64 {
-        self.e_avg[k] + self.e_shot[k]
+        match &self.certified_reach {
+            Some(r) => r[k],
+            None => self.e_avg[k] + self.e_shot[k],
+        }
     }
 
     /// The worst time: the largest half-width, earliest on ties (as certify's summary).
@@ -116,6 +160,7 @@ pub fn read_view(body: &Value) -> Result<BodyView, Vec<Problem>> {
                     shot_approximate: o["shot_term"]
                         .as_str()
                         .is_some_and(|s| s.contains("approximate")),
+                    certified_reach: certified_reach(o, k, times.len(), &mut problems),
                 };
                 for (c, len) in [
                     ("e_avg", rows.e_avg.len()),
@@ -273,6 +318,7 @@ pub fn check_claim(
         }
     }
     let numbers_support = first_excess.is_none();
+    let data = selected.iter().any(|o| o.certified_reach.is_some());
     let inconsistent = view.verdict_status == "inconsistent";
     let supported = numbers_support && !inconsistent;
     let reason = if inconsistent {
@@ -287,15 +333,34 @@ pub fn check_claim(
         )
     } else if let Some(p) = &first_excess {
         format!(
-            "no: at {} t = {} {} the certified half-width E_avg + E_shot = {} + {} = {} exceeds \
-             the claimed {}",
-            p.observable, p.time, view.time_unit, p.e_avg, p.e_shot, p.half_width, claimed
+            "no: at {} t = {} {} the certified half-width {} exceeds the claimed {}",
+            p.observable,
+            p.time,
+            view.time_unit,
+            if data {
+                format!(
+                    "(the reach of the intersection of the model and data statements from the \
+                     mean) = {}",
+                    p.half_width
+                )
+            } else {
+                format!(
+                    "E_avg + E_shot = {} + {} = {}",
+                    p.e_avg, p.e_shot, p.half_width
+                )
+            },
+            claimed
         )
     } else {
         let l = largest.as_ref();
         format!(
-            "yes: every certified half-width E_avg + E_shot at the {points} selected points is at \
+            "yes: every certified half-width {} at the {points} selected points is at \
              most the claimed {claimed}; the largest is {} ({} at t = {} {})",
+            if data {
+                "(the reach of the intersection of the model and data statements from the mean)"
+            } else {
+                "E_avg + E_shot"
+            },
             l.map_or(f64::NAN, |p| p.half_width),
             l.map_or("", |p| p.observable.as_str()),
             l.map_or(f64::NAN, |p| p.time),
@@ -398,7 +463,14 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
         "The failure probability {} was split by the rule '{}': {} to the noise fluctuation and \
          {} to the shot noise, over {} points with {} correction; one evolution (E_1) gets {} \
          per point.",
-        split["epsilon"],
+        if body.get("format_minor").is_some() {
+            format!(
+                "of the model statement, {} of the total {},",
+                split["model_statement_total"], split["epsilon"]
+            )
+        } else {
+            split["epsilon"].to_string()
+        },
         split["rule"].as_str().unwrap_or("?"),
         split["noise_fluctuation_total"],
         split["shot_noise_total"],
@@ -406,6 +478,32 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
         split["correction"].as_str().unwrap_or("no"),
         split["single_evolution_per_point"],
     ));
+    if body.get("format_minor").is_some() {
+        claim.push(format!(
+            "Two statements are intersected (format 1.1): the model statement above, at \
+             failure probability {} in all, and the data statement, an interval for the mean \
+             of the realizations from the values themselves at {} in all ({} per point), \
+             widened by the model's systematic and bias terms (or, for noise drawn once, by \
+             E_avg). The data statement assumes independent realizations with a common mean \
+             and unbiased shot averages; it needs no noise amplitude beyond those terms.",
+            split["model_statement_total"],
+            split["data_statement_total"],
+            split["data_statement_per_point"],
+        ));
+        for o in body["observables"].as_array().into_iter().flatten() {
+            let d = &o["data_statement"];
+            let narrower = d["narrower"]
+                .as_array()
+                .map_or(0, |a| a.iter().filter(|x| x == &"data").count());
+            let n = d["narrower"].as_array().map_or(0, Vec::len);
+            let method = d["method"][0].as_str().unwrap_or("?").replace('_', "-");
+            claim.push(format!(
+                "{}: the data statement ({method} interval) is the narrower at {narrower} of {n} \
+                 times.",
+                o["name"].as_str().unwrap_or("?")
+            ));
+        }
+    }
 
     let mut untested = Vec::new();
     let r = body["run"]["n_realizations"].as_u64().unwrap_or(0);

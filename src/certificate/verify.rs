@@ -6,7 +6,7 @@
 //! the JSON pointer of the first field that differs.
 //!
 //! A repacked run (same numbers, other chunking, compression, byte order or float width) has
-//! other bytes but the same content digests (formats.md). When the run's size or SHA-256
+//! other bytes but the same content digests (docs/certificate.md). When the run's size or SHA-256
 //! differ, verification goes on: it fails if any dataset's content digest differs, and
 //! otherwise compares the recomputed body with everything except `/inputs/run/size` and
 //! `/inputs/run/sha256`, and says that the file was repacked. The noise record (a small text
@@ -24,8 +24,7 @@ use super::record::{resolve_recorded, FileRecord};
 use crate::bounds::confidence::Simultaneity;
 use crate::error::{Error, InputKind, Result};
 
-/// What a certificate is, for messages about a path that is not one.
-pub const CERTIFICATE: &str = "a certificate (JSON, format quassay-certificate v1)";
+pub use super::document::CERTIFICATE;
 const INPUT_FILE: &str = "the archived input the certificate records (a regular file)";
 
 /// The result of a verification.
@@ -206,7 +205,7 @@ pub fn verify(cert_path: &Path, inputs_dir: Option<&Path>) -> Result<VerifyRepor
     };
     let mut resolved = Vec::new();
     // A run whose bytes changed may only have been repacked; that is decided below from the
-    // content digests of its datasets (formats.md: repacking must not break verification).
+    // content digests of its datasets (docs/certificate.md: repacking must not break verification).
     let mut run_bytes_changed: Option<(FileRecord, FileRecord)> = None;
     for role in ["run", "noise_record"] {
         let rec = recorded_file(cert_path, &cert.body, role)?;

@@ -1,7 +1,7 @@
 //! The χ² distribution: survival function, distribution function and upper quantiles, through
 //! the regularized incomplete gamma functions `P(a, x)` and `Q(a, x) = 1 − P(a, x)`.
 //!
-//! The variance test of bounds.md §6 compares `(R−1)s²/V` with χ²_{R−1}; its p-value is the
+//! The variance test of docs/checks.md compares `(R−1)s²/V` with χ²_{R−1}; its p-value is the
 //! upper tail `Q((R−1)/2, X/2)` and the lower confidence limit of a variance needs the upper
 //! quantile. Degrees of freedom run from 1 to about 10⁴ (the number of realizations).
 //!

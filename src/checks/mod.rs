@@ -1,4 +1,4 @@
-//! Consistency of the data with the noise record (bounds.md §6).
+//! Consistency of the data with the noise record (docs/checks.md).
 //!
 //! A certificate is only as good as the record behind it, and the data can contradict the
 //! record: the spread between realizations cannot exceed what the recorded noise and the shot

@@ -1,4 +1,4 @@
-//! The spread between realizations, and the spread the record allows (bounds.md §6).
+//! The spread between realizations, and the spread the record allows (docs/checks.md).
 //!
 //! Per observable and time, the R realization values `v_r` have an unbiased sample variance
 //! `s²`. Under the record, with a common mean `μ` and independent realizations,
@@ -130,8 +130,8 @@ mod tests {
         assert_eq!(mean_and_variance(&[0.3, 0.3, 0.3]).unwrap().1, 0.0);
     }
 
-    /// Efron–Stein for one uniform source and O = Y on one spin with H = 0 (bounds.md worked
-    /// example): f(g) = sin(2δgt), whose exact variance 1/2 − sin(4δt)/(8δt) (closed form of
+    /// Efron–Stein for one uniform source and O = Y on one spin with H = 0 (the example of
+    /// docs/method.md §3): f(g) = sin(2δgt), whose exact variance 1/2 − sin(4δt)/(8δt) (closed form of
     /// E sin²(ag) for g uniform on [−1, 1], a = 2δt) stays below (2δt)²/3 = δ²σ²(s_O t)² and
     /// reaches it to leading order as δt → 0.
     #[test]

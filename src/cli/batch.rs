@@ -33,43 +33,12 @@ use serde_json::{json, Value};
 
 use super::args::{CertifyArgs, Cli};
 use super::certify::{
-    certify_one, default_output, default_report, options_of, show, summary_json, Certified, Job,
-    Progress,
+    certify_one, default_output, default_report, options_of, record_beside, show, summary_json,
+    Certified, Job, Progress,
 };
 use super::{print_stdout, Outcome};
 use crate::certificate::body::CertifyOptions;
 use crate::Error;
-
-/// The record beside `run`: `RUN.noise.json`, else `noise.json` in the run's folder; the
-/// message says which files were looked for and the fix.
-pub fn record_beside(run: &Path) -> Result<PathBuf, String> {
-    if !run.exists() {
-        return Err(format!(
-            "run file '{}' does not exist; check the path",
-            run.display()
-        ));
-    }
-    let stem = run
-        .file_stem()
-        .map(|s| s.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "run".into());
-    let candidates = [
-        run.with_file_name(format!("{stem}.noise.json")),
-        run.with_file_name("noise.json"),
-    ];
-    for c in &candidates {
-        if c.exists() {
-            return Ok(c.clone());
-        }
-    }
-    Err(format!(
-        "no noise record for run '{}': neither '{}' nor '{}' exists; put the run's record \
-         beside it under one of these names, or give it with --noise NOISE.json",
-        run.display(),
-        candidates[0].display(),
-        candidates[1].display()
-    ))
-}
 
 /// One line of the batch, in input order.
 #[derive(Debug, Clone, PartialEq)]

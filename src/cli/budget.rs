@@ -1,4 +1,4 @@
-//! `quassay budget`: the inverse questions of planning (bounds.md §7).
+//! `quassay budget`: the inverse questions of planning (docs/budget.md).
 //!
 //! From a noise record, a lattice and an observable's spectrum it answers: (a) the largest
 //! scale factor on every amplitude that keeps the error under a target at a given time,
@@ -7,7 +7,7 @@
 //! over system sizes. Each answer stands beside its worst-case counterpart (no cancellation
 //! between sources) and their ratio, the gain. Both errors are answered: the averaged trace
 //! (`E_avg + E_shot`, the half-width `certify` states) and one noisy evolution (`E_1`).
-//! The bounds are the global ones (bounds.md §3); the search is in [`crate::bounds::planning`].
+//! The bounds are the global ones (docs/method.md §3); the search is in [`crate::bounds::planning`].
 
 use std::path::PathBuf;
 
@@ -414,9 +414,12 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
             "failure_probability": { "fluctuation": cs.p_point, "shots": cs.alpha_point,
                                      "single_evolution": cs.p_single_point },
             "errors": {
-                "averaged": "e_avg + e_shot (global bounds, bounds.md §3)",
-                "single": "e_one, one noisy evolution (global bounds, bounds.md §3)",
+                "averaged": "e_avg + e_shot (global bounds, docs/method.md §3)",
+                "single": "e_one, one noisy evolution (global bounds, docs/method.md §3)",
             },
+            "statement": "model statement only, at the whole confidence level; a certificate \
+                          also intersects it with the data statement (docs/method.md section \
+                          6), which needs the data",
             "bisection_relative_tolerance": planning::REL_TOL,
             "scale": by(&scale),
             "time_limit": by(&time),
@@ -582,10 +585,17 @@ fn render_text(
         }
     }
     s.push_str(
-        "\nstochastic: the global bounds of bounds.md §3 (cancellation between independent \
+        "\nstochastic: the global bounds of docs/method.md §3 (cancellation between independent \
          sources); worst case: no cancellation; gain: stochastic / worst case. \"none\": the \
          target is below the shot term; \"unlimited\": the target is at least the spread of the \
          observable (or the search limit was reached).\n",
+    );
+    s.push_str(
+        "planning uses the model statement alone, at the whole confidence level: a certificate \
+         also intersects it with the data statement (an interval from the recorded \
+         realizations, docs/method.md section 6), which cannot be planned before the data exist \
+         and can only narrow the certified interval, though the model statement then gets only \
+         its share of the failure probability (certify --data-share).\n",
     );
     s
 }

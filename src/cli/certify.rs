@@ -1,7 +1,8 @@
 //! `quassay certify`: bounds and certificate for one run, and a compact summary table.
 //!
-//! Several runs, or folders of runs, go to [`super::batch`], which certifies each through
-//! `certify_one` as a single run is certified here.
+//! Several runs, or folders of runs, go to [`super::batch`] (the choice is made in
+//! [`super::main`]), which certifies each through `certify_one` as a single run is certified
+//! here; this module does not depend on the batch.
 
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -109,7 +110,7 @@ pub(super) fn certify_one(job: &Job, progress: &Progress) -> crate::Result<Certi
     let mut computed = computed?;
     // The body moves into the certificate (no copy: it can hold millions of numbers) and is
     // streamed to the file while its digest is computed on another thread.
-    let cert = Certificate::seal_and_write(
+    let cert = crate::outputs::certificate_file::seal_and_write(
         std::mem::take(&mut computed.body),
         envelope_now(),
         job.output,
@@ -133,20 +134,43 @@ pub(super) fn certify_one(job: &Job, progress: &Progress) -> crate::Result<Certi
     })
 }
 
-/// Runs `certify`: one run file as before, or a batch (several runs, or folders of runs).
-pub fn run(args: &CertifyArgs) -> crate::Result<Outcome> {
-    match args.runs.as_slice() {
-        [one] if !one.is_dir() => run_single(args, one),
-        _ => super::batch::run(args),
+/// The record beside `run`: `RUN.noise.json`, else `noise.json` in the run's folder; the
+/// message says which files were looked for and the fix.
+pub fn record_beside(run: &Path) -> Result<PathBuf, String> {
+    if !run.exists() {
+        return Err(format!(
+            "run file '{}' does not exist; check the path",
+            run.display()
+        ));
     }
+    let stem = run
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "run".into());
+    let candidates = [
+        run.with_file_name(format!("{stem}.noise.json")),
+        run.with_file_name("noise.json"),
+    ];
+    for c in &candidates {
+        if c.exists() {
+            return Ok(c.clone());
+        }
+    }
+    Err(format!(
+        "no noise record for run '{}': neither '{}' nor '{}' exists; put the run's record \
+         beside it under one of these names, or give it with --noise NOISE.json",
+        run.display(),
+        candidates[0].display(),
+        candidates[1].display()
+    ))
 }
 
 /// Certifies a single run and prints its summary table (or JSON).
-fn run_single(args: &CertifyArgs, run: &Path) -> crate::Result<Outcome> {
+pub fn run_single(args: &CertifyArgs, run: &Path) -> crate::Result<Outcome> {
     let output = args.output.clone().unwrap_or_else(|| default_output(run));
     let noise = match &args.noise {
         Some(n) => n.clone(),
-        None => super::batch::record_beside(run).map_err(crate::Error::Options)?,
+        None => record_beside(run).map_err(crate::Error::Options)?,
     };
     let report = match (&args.report, args.reports) {
         (Some(r), _) => Some(r.clone()),

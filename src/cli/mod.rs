@@ -1,6 +1,6 @@
 //! The command line: parse, dispatch, print, and map outcomes to exit codes.
 //!
-//! Exit codes are a contract (formats.md): 0 success; 1 bad input or I/O error; 2 usage error
+//! Exit codes are a contract (docs/robustness.md, "Exit codes"): 0 success; 1 bad input or I/O error; 2 usage error
 //! (clap's own); 3 the work ran but the answer is negative. A broken pipe on standard output is
 //! not an error.
 
@@ -55,7 +55,7 @@ pub const EXIT_USAGE: u8 = 2;
 /// Exit code for a negative answer.
 pub const EXIT_NEGATIVE: u8 = 3;
 
-/// Runs the program and returns its exit code (formats.md, "Exit codes").
+/// Runs the program and returns its exit code (docs/robustness.md, "Exit codes").
 pub fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
@@ -67,7 +67,11 @@ pub fn main() -> ExitCode {
     };
     let result = match &cli.command {
         Command::Inspect(a) => inspect::run(a),
-        Command::Certify(a) => certify::run(a),
+        // One run file as before, or a batch (several runs, or folders of runs).
+        Command::Certify(a) => match a.runs.as_slice() {
+            [one] if !one.is_dir() => certify::run_single(a, one),
+            _ => batch::run(a),
+        },
         Command::Verify(a) => verify::run(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Review(a) => review::run(a),

@@ -147,7 +147,7 @@ partial output was left. Run the command again once the file is complete.\n",
 ];
 
 /// Installs a `SIGBUS` handler that says an input file was truncated while mapped and exits
-/// with code 1 (formats.md: a problem with an input). For the binary only; call it before any
+/// with code 1 (docs/robustness.md: a problem with an input). For the binary only; call it before any
 /// other thread exists.
 pub fn report_truncation_on_sigbus() {
     extern "C" fn on_sigbus(_: libc::c_int) {

@@ -1,4 +1,4 @@
-//! Reader for noise records (JSON, format `quassay-noise` v1; formats.md, "Noise record").
+//! Reader for noise records (JSON, format `quassay-noise` v1; docs/noise-record.md).
 //!
 //! A noise record is the lab's description of the random local perturbations of its device.
 //! Everything the bounds certify rests on it, so the reader is strict: every key is known,
@@ -103,7 +103,8 @@ mod tests {
     use crate::model::units::FrequencyUnit;
     use serde_json::{json, Value};
 
-    /// The example of formats.md, "Noise record" (calibration text replaced).
+    /// A one-source record (uniform detuning on every site) in the layout of the example of
+    /// docs/noise-record.md.
     fn example() -> Value {
         json!({
             "format": "quassay-noise",
@@ -148,7 +149,7 @@ mod tests {
     }
 
     #[test]
-    fn the_formats_md_example_is_accepted() {
+    fn the_documented_example_is_accepted() {
         let r = noise_record_from_value(&example()).unwrap();
         assert_eq!(r.frequency_unit, FrequencyUnit::RadPerUs);
         assert_eq!(r.redrawn, Redrawn::EveryRealization);

@@ -1,4 +1,4 @@
-//! Reader for run files (HDF5, layout `quassay-run` v1; formats.md, docs/run-format.md).
+//! Reader for run files (HDF5, layout `quassay-run` v1; docs/run-format.md).
 //!
 //! [`inspect_run`] reads everything it can, collects every problem of the layout (each with its
 //! HDF5 path and the fix) and a summary of what it found; [`read_run`] is the same but returns

@@ -8,6 +8,7 @@
 pub mod lattice;
 pub mod noise;
 pub mod run;
+pub mod sums;
 pub mod units;
 
 pub use lattice::{Boundary, Geometry, Lattice};

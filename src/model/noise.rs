@@ -3,14 +3,14 @@
 //! A [`NoiseRecord`] is what the JSON file says, checked but not yet tied to a run. Expanding it
 //! against a run's lattice and time unit gives a [`NoiseModel`]: one [`Instance`] per site, bond
 //! or listed support, each with its amplitude `δ_i` in radians per the run's time unit, already
-//! multiplied by half the spread of the operator it multiplies (bounds.md §1), so that the
+//! multiplied by half the spread of the operator it multiplies (docs/method.md §1), so that the
 //! centred operator has norm at most 1.
 
 use super::lattice::Lattice;
 use super::units::{FrequencyUnit, TimeUnit};
 use crate::Problem;
 
-/// How often the random part `g` of the noise is drawn again (bounds.md §1).
+/// How often the random part `g` of the noise is drawn again (docs/method.md §1).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Redrawn {
     EveryShot,
@@ -138,7 +138,7 @@ pub struct Instance {
 }
 
 impl Instance {
-    /// `m_i = |μ_i| + u_i` (bounds.md §1).
+    /// `m_i = |μ_i| + u_i` (docs/method.md §1).
     pub fn systematic(&self) -> f64 {
         self.mean_offset.abs() + self.mean_offset_uncertainty
     }
@@ -152,7 +152,7 @@ pub struct NoiseModel {
 }
 
 impl NoiseSource {
-    /// Half the spread of the operator the source multiplies, `(max − min)/2` (bounds.md §1).
+    /// Half the spread of the operator the source multiplies, `(max − min)/2` (docs/method.md §1).
     pub fn half_spread(&self) -> f64 {
         0.5 * (self.operator_spectrum[1] - self.operator_spectrum[0])
     }

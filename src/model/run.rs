@@ -1,4 +1,4 @@
-//! The checked model of a run file (layout `quassay-run` v1, formats.md).
+//! The checked model of a run file (layout `quassay-run` v1, docs/run-format.md).
 //!
 //! Values are held as `f64` whatever their type on disk (a float32 value converts exactly), and
 //! frequencies are kept as given together with their unit; [`Hamiltonian::bond_norms_angular`]

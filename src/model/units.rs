@@ -1,6 +1,6 @@
 //! Time and frequency units, and the one conversion every frequency goes through.
 //!
-//! formats.md, "Units": a run declares its time unit; every frequency declares its unit, angular
+//! docs/run-format.md and docs/noise-record.md: a run declares its time unit; every frequency declares its unit, angular
 //! (`rad/s` ... `rad/ns`) or cyclic (`Hz` ... `GHz`, multiplied by 2π). Nothing is ever assumed:
 //! an unknown or missing unit is an error at the reader. The conversion multiplies by an exact
 //! power of ten (taken from a table, not computed as a product of two rounded factors) and, for

@@ -5,6 +5,7 @@
 //! written file and a failure leaves nothing behind.
 
 pub mod atomic;
+pub mod certificate_file;
 pub mod noise_record;
 pub mod report;
 pub mod run_file;

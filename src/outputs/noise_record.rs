@@ -2,7 +2,7 @@
 //!
 //! The simulator writes the record that goes with a synthetic run, and a user may want a
 //! record rewritten in its canonical layout. The text is laid out by hand so that the keys come
-//! in the order of formats.md's example (a `serde_json::Map` would sort them), two spaces per
+//! in the order of docs/noise-record.md's example (a `serde_json::Map` would sort them), two spaces per
 //! level, one source per block, short arrays and the `distribution` object on one line, and a
 //! final newline. Numbers are printed by serde_json (shortest text that reads back to the same
 //! double), strings are escaped by serde_json, so reading the output with
@@ -203,9 +203,10 @@ mod tests {
     }
 
     #[test]
-    fn the_formats_md_example_is_written_in_its_own_layout() {
-        // The expected text is the example of formats.md, "Noise record", except that the
-        // calibration object is written with the same spacing as the distribution object.
+    fn a_documented_record_is_written_in_its_own_layout() {
+        // The expected text is a one-source record laid out as the example of
+        // docs/noise-record.md, except that the calibration object is written with the same
+        // spacing as the distribution object.
         let expected = r#"{
   "format": "quassay-noise",
   "format_version": 1,

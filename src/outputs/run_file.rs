@@ -1,4 +1,4 @@
-//! Writer for run files (HDF5, layout `quassay-run` v1, formats.md and docs/run-format.md).
+//! Writer for run files (HDF5, layout `quassay-run` v1, docs/run-format.md).
 //!
 //! [`write_run`] writes a complete file at the path it is given; making that atomic is the
 //! caller's job ([`crate::outputs::atomic::write_file`] hands it a temporary path). Strings are

@@ -1,5 +1,5 @@
 //! The ideal trajectory of a scenario, kept in memory, and its comparison with one noisy
-//! evolution: the fidelity `F(t) = |⟨ψ(t)|ψ_g(t)⟩|²` (bounds.md §4) and the exact noisy values
+//! evolution: the fidelity `F(t) = |⟨ψ(t)|ψ_g(t)⟩|²` (docs/method.md §4) and the exact noisy values
 //! of the scenario's observables at every recorded time.
 //!
 //! [`super::run::simulate`] records only expectation values; checking the fidelity bound needs
@@ -176,7 +176,7 @@ mod tests {
         }
     }
 
-    /// Closed form (after bounds.md, worked example "one site, no Hamiltonian", with a field
+    /// Closed form (the one-site example of docs/method.md §3, "Check", with a field
     /// `h Z` added): the noisy state is `e^{−iφZ}` times the ideal one with `φ = a(μ+g)t`, so
     /// `F = |⟨+|e^{−iφZ}|+⟩|² = cos²φ`, and `⟨X⟩ = cos 2(ht + φ)`.
     #[test]

@@ -106,6 +106,50 @@ pub fn child_path(at: &str, name: &str) -> String {
     }
 }
 
+/// Records a note for every attribute and member of `group` that layout v1 does not define.
+pub fn note_unknown(c: &mut Collector, group: &Group, at: &str, attrs: &[&str], members: &[&str]) {
+    let mut found: Vec<String> = group.attr_names().unwrap_or_default();
+    found.sort();
+    for a in found.iter().filter(|a| !attrs.contains(&a.as_str())) {
+        c.note(
+            at,
+            format!(
+                "attribute `{a}` is not part of layout v1 and was ignored (check its spelling)"
+            ),
+        );
+    }
+    let mut found: Vec<String> = group.member_names().unwrap_or_default();
+    found.sort();
+    for m in found.iter().filter(|m| !members.contains(&m.as_str())) {
+        c.note(
+            child_path(at, m),
+            "is not part of layout v1 and was ignored (check its spelling)",
+        );
+    }
+}
+
+/// Opens the group `name` under `parent`, recording a problem if it is missing or not a group.
+pub fn open_group(
+    c: &mut Collector,
+    parent: &Group,
+    at: &str,
+    name: &str,
+    fix: &str,
+) -> Option<Group> {
+    let path = child_path(at, name);
+    if !parent.link_exists(name) {
+        c.problem(path, format!("is missing; {fix}"));
+        return None;
+    }
+    match parent.group(name) {
+        Ok(g) => Some(g),
+        Err(_) => {
+            c.problem(path, format!("is not a group; {fix}"));
+            None
+        }
+    }
+}
+
 fn descriptor_of(dtype: hdf5::Result<hdf5::Datatype>) -> Option<TypeDescriptor> {
     dtype.ok().and_then(|t| t.to_descriptor().ok())
 }

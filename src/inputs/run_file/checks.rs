@@ -358,7 +358,7 @@ pub fn terms_norm_bound(weights: &[f64], spectra: &[[f64; 2]]) -> f64 {
         .sum()
 }
 
-/// formats.md: the terms' norm bound must bound both `|spectrum_min|` and `|spectrum_max|`
+/// docs/run-format.md, "Term structure": the terms' norm bound must bound both `|spectrum_min|` and `|spectrum_max|`
 /// (a declared range wider than the terms allow cannot be right). Allows
 /// `1e-9·bound + 1e-12` for rounding.
 pub fn check_terms_consistent(

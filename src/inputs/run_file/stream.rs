@@ -4,8 +4,8 @@
 //! content digests). Memory stays at one row block (about 1 MiB) per dataset plus per-time
 //! sums, whatever R × T × K.
 
-use crate::bounds::run_bounds::ObservableSums;
-use crate::certificate::hash::ContentKind;
+use crate::inputs::digest::ContentKind;
+use crate::model::sums::ObservableSums;
 use crate::model::{Hamiltonian, Lattice, Observable, Run, Terms, TimeUnit};
 
 /// Receives the numeric content of the observables' R × T datasets (`values`, `shots`,

@@ -40,6 +40,41 @@ pub(crate) struct ObservableColumns {
     pub e_avg: Vec<f64>,
     pub e_shot: Vec<f64>,
     pub claim: String,
+    /// Format 1.1: the data statement's interval and the certified intersection, per time
+    /// (NaN where the two statements are disjoint).
+    pub data: Option<DataBands>,
+}
+
+/// The data statement's bands of one observable (format 1.1).
+#[derive(Debug, Clone)]
+pub(crate) struct DataBands {
+    pub lower: Vec<f64>,
+    pub upper: Vec<f64>,
+    pub certified_lower: Vec<f64>,
+    pub certified_upper: Vec<f64>,
+    pub method: String,
+}
+
+/// An optional column of numbers or nulls (null, or anything else, read as NaN), of the
+/// run's length; `None` when absent or of another length.
+fn optional_column(body: &Value, ptr: &str, n_times: usize) -> Option<Vec<f64>> {
+    let a = body.pointer(ptr)?.as_array()?;
+    (a.len() == n_times).then(|| a.iter().map(|x| x.as_f64().unwrap_or(f64::NAN)).collect())
+}
+
+fn data_bands(body: &Value, p: &str, n_times: usize) -> Option<DataBands> {
+    let col = |name: &str| optional_column(body, &format!("{p}/{name}"), n_times);
+    Some(DataBands {
+        lower: col("data_statement/lower")?,
+        upper: col("data_statement/upper")?,
+        certified_lower: col("certified_lower")?,
+        certified_upper: col("certified_upper")?,
+        method: body
+            .pointer(&format!("{p}/data_statement/method/0"))
+            .and_then(Value::as_str)
+            .unwrap_or("")
+            .replace('_', "-"),
+    })
 }
 
 /// The variance check of one observable, as in `body.checks.observables[i].variance`.
@@ -239,6 +274,7 @@ pub(crate) fn read_body(body: &Value, file: &Path) -> Result<ReportData> {
             e_avg: r.column(&format!("{p}/e_avg")),
             e_shot: r.column(&format!("{p}/e_shot")),
             claim,
+            data: data_bands(body, &p, times.len()),
             name: name.clone(),
         });
         // The checks of this observable, found by name (the order is the same, but a name

@@ -1,6 +1,6 @@
 #!/usr/bin/env python3
 """Exact commutator norms ||[Z_0(tau), Z_j]|| for the Lieb-Robinson unit tests of
-src/bounds/light_cone.rs (invented test systems, not lab data).
+src/bounds/light_cone/tests.rs (invented test systems, not lab data).
 
 H = sum_bonds J (X_a X_b + Y_a Y_b + Delta Z_a Z_b) + sum_i h_i Z_i, J = 1, Delta = 0.5, the
 fields h_i uniform on [-1, 1] from numpy.random.default_rng(seed). Z_0(tau) = e^{iH tau} Z_0

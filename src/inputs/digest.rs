@@ -12,6 +12,11 @@
 //! a scalar); `<values>` the values in row-major (C) order, each as 8 little-endian bytes:
 //! IEEE 754 binary64 for floats (float32 data converted exactly to binary64 first) and two's
 //! complement 64-bit for integers.
+//!
+//! Why in `inputs`: the file digests are taken from the same read-only mapping the readers use
+//! ([`crate::inputs::mapped`]) and the content digests are fed while a run's datasets stream
+//! through the reader, so the readers need them and nothing here needs a higher layer. The
+//! certificate records them; `certificate::hash` is the same module under its older path.
 
 use std::io::Read;
 use std::path::Path;
