@@ -116,6 +116,14 @@ fn chain_case(
     }
 }
 
+/// A declared source on every site, or on every bond, of a case.
+fn site(name: &str, op: &str, amplitude: f64, dist: Value) -> Value {
+    source(name, "each_site", op, amplitude, dist)
+}
+fn bond(name: &str, op: &str, amplitude: f64, dist: Value) -> Value {
+    source(name, "each_bond", op, amplitude, dist)
+}
+
 fn cases() -> Vec<Case> {
     vec![
         chain_case(
@@ -129,20 +137,8 @@ fn cases() -> Vec<Case> {
             ]),
             "every_realization",
             json!([
-                source(
-                    "detuning",
-                    "each_site",
-                    "Z",
-                    0.05,
-                    json!({"family": "uniform"})
-                ),
-                source(
-                    "bond jitter",
-                    "each_bond",
-                    "ZZ",
-                    0.03,
-                    json!({"family": "two_point"})
-                ),
+                site("detuning", "Z", 0.05, json!({"family": "uniform"})),
+                bond("bond jitter", "ZZ", 0.03, json!({"family": "two_point"})),
             ]),
             2,
             1,
@@ -160,16 +156,14 @@ fn cases() -> Vec<Case> {
             ]),
             "every_realization",
             json!([
-                source(
+                site(
                     "detuning",
-                    "each_site",
                     "Z",
                     0.04,
                     json!({"family": "normal", "sigma": 0.7})
                 ),
-                source(
+                bond(
                     "exchange jitter",
-                    "each_bond",
                     "XX+YY",
                     0.02,
                     json!({"family": "uniform"})
@@ -190,20 +184,8 @@ fn cases() -> Vec<Case> {
             ]),
             "every_shot",
             json!([
-                source(
-                    "occupation kick",
-                    "each_site",
-                    "n",
-                    0.06,
-                    json!({"family": "two_point"})
-                ),
-                source(
-                    "detuning",
-                    "each_site",
-                    "Z",
-                    0.03,
-                    json!({"family": "uniform"})
-                ),
+                site("occupation kick", "n", 0.06, json!({"family": "two_point"})),
+                site("detuning", "Z", 0.03, json!({"family": "uniform"})),
             ]),
             6,
             2,
@@ -217,16 +199,9 @@ fn cases() -> Vec<Case> {
             json!([{"name": "Z_2", "pauli": "Z", "sites": [2]}]),
             "once",
             json!([
-                source(
-                    "detuning",
-                    "each_site",
-                    "Z",
-                    0.05,
-                    json!({"family": "two_point"})
-                ),
-                source(
+                site("detuning", "Z", 0.05, json!({"family": "two_point"})),
+                bond(
                     "bond drift",
-                    "each_bond",
                     "ZZ",
                     0.03,
                     json!({"family": "normal", "sigma": 0.5})
@@ -246,13 +221,7 @@ fn cases() -> Vec<Case> {
                 {"name": "mag", "pauli": "Z", "over": "each_site", "weights": "mean"}
             ]),
             "once",
-            json!([source(
-                "detuning",
-                "each_site",
-                "Z",
-                0.06,
-                json!({"family": "uniform"})
-            )]),
+            json!([site("detuning", "Z", 0.06, json!({"family": "uniform"}))]),
             25,
             2,
             300,
