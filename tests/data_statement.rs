@@ -41,8 +41,10 @@
 //! every trial is a simulation of its own, with its own seed. The cases' seeds are far apart,
 //! so no two trials share a random stream.
 //!
-//! The R = 2 case checks the edge only: no valid interval for a mean from two values at level
-//! ε_d/6 is narrower than the spectrum, so there the claim cannot fail. The sharpest case is
+//! The R = 2 case checks the edge only: a valid interval for a mean from two values at level
+//! α = ε_d/6 spans nearly the whole spectrum `[a, b]` (two values `b` have probability
+//! `p² > α` under the law on `{a, b}` with `P(b) = p > √α ≈ 0.065`, whose mean it must
+//! then contain), so there the claim can hardly fail. The sharpest case is
 //! the single point (R = 12, one shot each, a weak noise): there the data statement's interval
 //! is the interval for the mean at the whole ε_d, with almost nothing added.
 //!
