@@ -46,7 +46,7 @@ use quassay::model::{NoiseModel, Redrawn};
 use quassay::simulate::fidelity::{IdealTrajectory, NoisyTrace};
 use quassay::simulate::run::{simulate, Simulation};
 
-use crate::util::{quassay, scratch};
+use crate::util::{binomial_critical, quassay, scenario, scratch, source};
 
 /// Level of every statistical check.
 const LEVEL: f64 = 0.001;
@@ -57,29 +57,6 @@ const SIM_TOL: f64 = 1e-9;
 
 // ---------------------------------------------------------------------------------------
 // Binomial and χ² helpers.
-
-/// The smallest `k` with `P(Bin(n, p) ≥ k) ≤ level`: a count of `k` or more successes rejects
-/// `P(success) ≤ p` at that level. The upper tail is summed exactly from the pmf, computed in
-/// log space by the recursion `pmf(j+1) = pmf(j) (n−j)/(j+1) · p/(1−p)`, from the top down.
-fn binomial_critical(n: u64, p: f64, level: f64) -> u64 {
-    if p >= 1.0 {
-        return n + 1;
-    }
-    let mut ln_pmf = vec![0.0; n as usize + 1];
-    ln_pmf[0] = n as f64 * (1.0 - p).ln();
-    let odds = (p / (1.0 - p)).ln();
-    for j in 0..n as usize {
-        ln_pmf[j + 1] = ln_pmf[j] + ((n as usize - j) as f64 / (j + 1) as f64).ln() + odds;
-    }
-    let mut tail = 0.0;
-    for k in (0..=n as usize).rev() {
-        tail += ln_pmf[k].exp();
-        if tail > level {
-            return k as u64 + 1;
-        }
-    }
-    0
-}
 
 /// The factor `χ²_{ν, 1−level} / ν` (statrs' inverse χ² distribution function).
 fn chi_square_factor(dof: u64, level: f64) -> f64 {
@@ -119,43 +96,6 @@ struct Case {
     scenario: Value,
     /// Independent draws of `g` checked one by one.
     draws: usize,
-}
-
-#[allow(clippy::too_many_arguments)]
-fn scenario(
-    run_id: &str,
-    lattice: Value,
-    hamiltonian: Value,
-    initial_state: Value,
-    observables: Value,
-    redrawn: &str,
-    sources: Value,
-    realizations: usize,
-    shots: u64,
-) -> Value {
-    json!({
-        "format": "quassay-scenario", "format_version": 1,
-        "run_id": run_id,
-        "description": "Invented scenario for the exact-simulation tests of the bounds",
-        "time_unit": "us", "energy_unit": "rad/us",
-        "lattice": lattice,
-        "hamiltonian": hamiltonian,
-        "initial_state": initial_state,
-        "times": {"start": 0.0, "stop": 1.5, "count": 6},
-        "observables": observables,
-        "realizations": realizations, "shots": shots, "seed": 20_261_207u64,
-        "noise": {
-            "format": "quassay-noise", "format_version": 1,
-            "frequency_unit": "rad/us", "redrawn": redrawn,
-            "sources": sources,
-            "calibration": {"method": "invented", "notes": "invented record for tests"}
-        }
-    })
-}
-
-fn source(name: &str, acts_on: &str, op: &str, amplitude: f64, dist: Value) -> Value {
-    json!({"name": name, "acts_on": acts_on, "operator": op, "amplitude": amplitude,
-           "distribution": dist, "mean_offset": 0.0, "mean_offset_uncertainty": 0.0})
 }
 
 /// Chain of 6, Néel state; uniform Z detunings on sites, two-point ZZ on bonds.

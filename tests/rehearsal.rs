@@ -57,12 +57,9 @@ use quassay::certificate::body::CertifyOptions;
 use quassay::certificate::certify::compute_body;
 use quassay::checks::report::{Category, ChecksReport, TestKind};
 use quassay::inputs::scenario::{parse_scenario, Scenario};
-use quassay::outputs::noise_record::to_json_string;
-use quassay::outputs::run_file::{write_run, WriteOptions};
-use quassay::simulate::run::simulate;
 use serde_json::{json, Value};
 
-use crate::util::{quassay, scratch};
+use crate::util::{certify_in, scratch, write_inputs};
 
 /// Seeds of every rehearsal (fixed: the counts are reproducible).
 const SEEDS: std::ops::Range<u64> = 1..21;
@@ -120,14 +117,6 @@ fn z_register(v: &mut Value) {
             .map(|k| json!({"name": format!("Z_{k}"), "pauli": "Z", "sites": [k]}))
             .collect(),
     );
-}
-
-/// Simulates `s` with `seed` and writes `run.h5` and `noise.json` (the declared record) into
-/// `dir`, replacing what is there.
-fn write_inputs(s: &Scenario, seed: u64, dir: &Path) {
-    let sim = simulate(s, seed);
-    write_run(&dir.join("run.h5"), &sim.run, &WriteOptions::default()).unwrap();
-    std::fs::write(dir.join("noise.json"), to_json_string(&s.noise)).unwrap();
 }
 
 /// The checks `certify` would make of `s` simulated with `seed` (default options).
@@ -190,24 +179,8 @@ fn assert_understated_record_is_flagged(reports: &[ChecksReport], what: &str) {
 fn assert_certify_exits_3(s: &Scenario, seed: u64) {
     let dir = scratch();
     write_inputs(s, seed, dir.path());
-    let v = certify_in(dir.path(), 3);
+    let v = certify_in(dir.path(), "run.cert.json", &[], 3);
     assert_eq!(v["body"]["verdict"]["status"], "inconsistent");
-}
-
-/// `quassay certify` of `run.h5` with `noise.json` in `dir`, asserting exit `code`; the
-/// certificate it wrote.
-fn certify_in(dir: &Path, code: i32) -> Value {
-    let cert = dir.join("run.cert.json");
-    quassay()
-        .arg("certify")
-        .arg(dir.join("run.h5"))
-        .arg("--noise")
-        .arg(dir.join("noise.json"))
-        .arg("-o")
-        .arg(&cert)
-        .assert()
-        .code(code);
-    serde_json::from_str(&std::fs::read_to_string(&cert).unwrap()).unwrap()
 }
 
 #[test]
@@ -288,7 +261,7 @@ fn a_run_with_one_realization_certifies_with_the_variance_checks_not_possible() 
     // The ideal-reference tests still run: four observables at five times.
     assert_eq!(r.n_tests, 20);
 
-    let v = certify_in(dir.path(), 0);
+    let v = certify_in(dir.path(), "run.cert.json", &[], 0);
     assert_eq!(v["body"]["checks"]["variance"]["status"], "not_possible");
     assert_eq!(v["body"]["verdict"]["status"], "consistent");
 }

@@ -7,6 +7,7 @@ mod bounds_exact;
 mod budget;
 mod certificate_file;
 mod certify;
+mod data_statement;
 mod hostile;
 mod light_cone;
 mod noise_record;

@@ -4,6 +4,8 @@
 
 use std::path::{Path, PathBuf};
 
+use serde_json::{json, Value};
+
 /// The repository root (where Cargo.toml is).
 pub fn repo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
@@ -162,4 +164,110 @@ pub fn assert_holds_on_exact_simulation(
         let mean = col.iter().sum::<f64>() / col.len() as f64;
         assert!((mean - id).abs() <= e_avg[k] + tol, "{name} t={t}");
     }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Simulated inputs and `quassay certify` on them, shared by the rehearsal and data-statement tests.
+
+/// Simulates `s` with `seed` and writes `run.h5` and `noise.json` (the declared record) into
+/// `dir`, replacing what is there.
+pub fn write_inputs(s: &quassay::inputs::scenario::Scenario, seed: u64, dir: &Path) {
+    let sim = quassay::simulate::run::simulate(s, seed);
+    quassay::outputs::run_file::write_run(
+        &dir.join("run.h5"),
+        &sim.run,
+        &quassay::outputs::run_file::WriteOptions::default(),
+    )
+    .unwrap();
+    std::fs::write(
+        dir.join("noise.json"),
+        quassay::outputs::noise_record::to_json_string(&s.noise),
+    )
+    .unwrap();
+}
+
+/// The command `quassay certify DIR/run.h5 --noise DIR/noise.json -o DIR/NAME`.
+pub fn certify_command(dir: &Path, name: &str) -> assert_cmd::Command {
+    let mut c = quassay();
+    c.arg("certify")
+        .arg(dir.join("run.h5"))
+        .arg("--noise")
+        .arg(dir.join("noise.json"))
+        .arg("-o")
+        .arg(dir.join(name));
+    c
+}
+
+/// [`certify_command`] with `args`, asserting exit `code`; the certificate it wrote (not
+/// checked against the schema: see [`certified`] for that).
+pub fn certify_in(dir: &Path, name: &str, args: &[&str], code: i32) -> Value {
+    certify_command(dir, name).args(args).assert().code(code);
+    serde_json::from_str(&std::fs::read_to_string(dir.join(name)).unwrap()).unwrap()
+}
+
+// ---------------------------------------------------------------------------------------------
+// Invented scenarios and the binomial law, shared by the exact-simulation tests (bounds_exact,
+// data_statement).
+
+/// An invented scenario (docs/scenario.md): times 0 to 1.5 in 6 steps and a fixed seed, which
+/// callers may replace.
+#[allow(clippy::too_many_arguments)]
+pub fn scenario(
+    run_id: &str,
+    lattice: Value,
+    hamiltonian: Value,
+    initial_state: Value,
+    observables: Value,
+    redrawn: &str,
+    sources: Value,
+    realizations: usize,
+    shots: u64,
+) -> Value {
+    json!({
+        "format": "quassay-scenario", "format_version": 1,
+        "run_id": run_id,
+        "description": "Invented scenario for the exact-simulation tests of the bounds",
+        "time_unit": "us", "energy_unit": "rad/us",
+        "lattice": lattice,
+        "hamiltonian": hamiltonian,
+        "initial_state": initial_state,
+        "times": {"start": 0.0, "stop": 1.5, "count": 6},
+        "observables": observables,
+        "realizations": realizations, "shots": shots, "seed": 20_261_207u64,
+        "noise": {
+            "format": "quassay-noise", "format_version": 1,
+            "frequency_unit": "rad/us", "redrawn": redrawn,
+            "sources": sources,
+            "calibration": {"method": "invented", "notes": "invented record for tests"}
+        }
+    })
+}
+
+/// A declared noise source of a scenario (zero mean offset, known exactly).
+pub fn source(name: &str, acts_on: &str, op: &str, amplitude: f64, dist: Value) -> Value {
+    json!({"name": name, "acts_on": acts_on, "operator": op, "amplitude": amplitude,
+           "distribution": dist, "mean_offset": 0.0, "mean_offset_uncertainty": 0.0})
+}
+
+/// The smallest `k` with `P(Bin(n, p) ≥ k) ≤ level`: a count of `k` or more successes rejects
+/// `P(success) ≤ p` at that level. The upper tail is summed exactly from the pmf, computed in
+/// log space by the recursion `pmf(j+1) = pmf(j) (n−j)/(j+1) · p/(1−p)`, from the top down.
+pub fn binomial_critical(n: u64, p: f64, level: f64) -> u64 {
+    if p >= 1.0 {
+        return n + 1;
+    }
+    let mut ln_pmf = vec![0.0; n as usize + 1];
+    ln_pmf[0] = n as f64 * (1.0 - p).ln();
+    let odds = (p / (1.0 - p)).ln();
+    for j in 0..n as usize {
+        ln_pmf[j + 1] = ln_pmf[j] + ((n as usize - j) as f64 / (j + 1) as f64).ln() + odds;
+    }
+    let mut tail = 0.0;
+    for k in (0..=n as usize).rev() {
+        tail += ln_pmf[k].exp();
+        if tail > level {
+            return k as u64 + 1;
+        }
+    }
+    0
 }

@@ -189,9 +189,23 @@ pub struct DataInputs<'a> {
     pub method: MeanMethod,
 }
 
-/// The largest double above a finite `x` (`x + ulp`).
+/// The smallest double above `x` (`f64::next_up`, which is stable only from Rust 1.86, above
+/// the crate's minimum 1.85): the next bit pattern towards +∞; +∞ and NaN are kept.
 fn up(x: f64) -> f64 {
-    x.next_up()
+    if x.is_nan() || x == f64::INFINITY {
+        x
+    } else if x == 0.0 {
+        f64::from_bits(1)
+    } else if x > 0.0 {
+        f64::from_bits(x.to_bits() + 1)
+    } else {
+        f64::from_bits(x.to_bits() - 1)
+    }
+}
+
+/// The largest double below `x` (`f64::next_down`).
+fn down(x: f64) -> f64 {
+    -up(-x)
 }
 
 /// The term added to the mean interval at time index `k` (see the module header).
@@ -256,7 +270,7 @@ pub fn observable_statement(values: ArrayView2<f64>, inp: &DataInputs) -> DataSt
             let added = added_term(inp, k, s_o);
             // Rounded outward by one ulp each; the ideal value lies in the spectrum.
             let interval = [
-                (mean_interval[0] - added).next_down().max(a),
+                down(mean_interval[0] - added).max(a),
                 up(mean_interval[1] + added).min(b),
             ];
             let model = inp.model[k];
@@ -298,6 +312,24 @@ mod tests {
         assert!(shares(0.95, 1.0).is_err());
         assert!(shares(0.95, -0.1).is_err());
         assert!(shares(0.95, f64::NAN).is_err());
+    }
+
+    /// One ulp either way, against IEEE 754 binary64: the spacing of doubles in [1, 2) is
+    /// 2^-52, in [1/2, 1) it is 2^-53; the smallest subnormal is 2^-1074 (written 5e-324).
+    #[test]
+    fn up_and_down_step_one_double() {
+        let eps = f64::EPSILON;
+        assert_eq!(up(1.0), 1.0 + eps);
+        assert_eq!(down(1.0), 1.0 - eps / 2.0);
+        assert_eq!(up(-1.0), -1.0 + eps / 2.0);
+        assert_eq!(down(-1.0), -1.0 - eps);
+        assert_eq!(up(0.0), 5e-324);
+        assert_eq!(up(-0.0), 5e-324);
+        assert_eq!(down(0.0), -(5e-324));
+        assert_eq!(down(f64::MIN_POSITIVE), f64::MIN_POSITIVE - 5e-324);
+        assert_eq!(up(f64::MAX), f64::INFINITY);
+        assert_eq!(down(f64::NEG_INFINITY), f64::NEG_INFINITY);
+        assert!(up(f64::NAN).is_nan());
     }
 
     #[test]
