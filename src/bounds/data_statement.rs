@@ -130,7 +130,7 @@ pub fn alpha_per_point(data_epsilon: f64, points: usize, simultaneity: Simultane
 /// the whole range. Decided from the run's shape alone, before any value is read; where it
 /// is false (for instance with one realization) the model statement keeps all of ε.
 pub fn can_narrow(realizations: usize, alpha_point: f64, method: MeanMethod) -> bool {
-    if realizations < 2 || !(alpha_point > 0.0) {
+    if realizations < 2 || alpha_point.is_nan() || alpha_point <= 0.0 {
         return false;
     }
     let flat = vec![0.5; realizations];

@@ -307,7 +307,6 @@ mod tests {
     use super::*;
 
     #[test]
-    #[test]
     fn the_default_envelope_keeps_no_directory() {
         assert_eq!(private_argument(0, "/home/someone/bin/quassay"), "quassay");
         assert_eq!(private_argument(1, "certify"), "certify");
@@ -324,6 +323,7 @@ mod tests {
         assert!(envelope_now(true).get("host").is_some());
     }
 
+    #[test]
     fn unix_times_format_as_rfc_3339() {
         // Reference points: the Unix epoch; 2000-03-01 (after a leap day of a century year
         // divisible by 400) is 951868800 s; 2026-12-01T00:00:00Z is 1796083200 s (both computed
