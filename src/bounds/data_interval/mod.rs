@@ -1,4 +1,4 @@
-//! Data-driven confidence intervals for a common mean (issue #17): pure maths, no I/O.
+//! Data-driven confidence intervals for a common mean (docs/method.md §6.1): pure maths, no I/O.
 //!
 //! Exists so that an averaged trace can be certified from its realizations themselves, beside
 //! the model statement: `R` independent values in a known range `[lo, hi]` with a common mean
@@ -15,7 +15,7 @@
 //! * [`clopper_pearson()`]: the exact binomial interval (Clopper & Pearson 1934)
 //!   ([`clopper_pearson`](mod@clopper_pearson)).
 //!
-//! Derivation and numerical care: `docs/data-interval-draft.md`.
+//! Derivation and numerical care: docs/method.md §6.1.
 
 pub mod betting;
 pub mod clopper_pearson;
