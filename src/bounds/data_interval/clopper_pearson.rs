@@ -1,6 +1,6 @@
 //! The exact (Clopper–Pearson 1934) confidence interval for a binomial success probability.
 //!
-//! Exists for the noise-drawn-once case with R = 1 : a value that is the mean of
+//! Exists for the noise-drawn-once case with R = 1: a value that is the mean of
 //! ±1 outcomes with a known shot count is `2k/n − 1` for `k` successes in `n` trials.
 //! Lower end: the `p` with `P(X ≥ k; p) = α/2` (0 if k = 0); upper end: the `p` with
 //! `P(X ≤ k; p) = α/2` (1 if k = n), i.e. `1 − lower(n − k, n)`.
