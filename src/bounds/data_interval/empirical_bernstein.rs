@@ -43,8 +43,8 @@ pub fn empirical_bernstein_interval(values: &[f64], lo: f64, hi: f64, alpha: f64
 fn symmetric(values: &[f64], lo: f64, hi: f64, a: f64) -> [f64; 2] {
     let c = Constants::new(values.len(), lo, hi, a);
     let mut st = State::new();
-    for &x in values {
-        st.push(&c, x);
+    for (i, &x) in values.iter().enumerate() {
+        st.push(&c, &Step::at(i), x);
     }
     st.finish(&c)
 }
@@ -66,9 +66,10 @@ pub fn empirical_bernstein_columns(
     }
     let c = Constants::new(rows, lo, hi, alpha / 2.0);
     let mut states = vec![State::new(); cols];
-    for row in values.rows() {
+    for (i, row) in values.rows().into_iter().enumerate() {
+        let step = Step::at(i);
         for (st, &x) in states.iter_mut().zip(row.iter()) {
-            st.push(&c, x);
+            st.push(&c, &step, x);
         }
     }
     states
@@ -80,13 +81,33 @@ pub fn empirical_bernstein_columns(
         .collect()
 }
 
+/// What the `i`-th value of every interval shares: `1/t` and `1/(t + 1)` for `t = i + 1`,
+/// formed once per row and multiplied (a division per value and quantity otherwise). The
+/// running means they form are predictable whatever their rounding, which is all the
+/// interval's validity needs (docs/method.md §6.1), and the outward slack covers the rest.
+struct Step {
+    inv_t: f64,
+    inv_t1: f64,
+}
+
+impl Step {
+    fn at(i: usize) -> Step {
+        let t = (i + 1) as f64;
+        Step {
+            inv_t: 1.0 / t,
+            inv_t1: 1.0 / (t + 1.0),
+        }
+    }
+}
+
 /// What every value of one interval shares.
 struct Constants {
     lo: f64,
-    w: f64,
+    /// `1/(hi − lo)`.
+    inv_w: f64,
+    /// `2 ln(1/a)/n`, the numerator of the squared bets.
+    num_n: f64,
     n: f64,
-    /// `2 ln(1/a)`, the numerator of the bets.
-    num: f64,
     /// `ln(1/a)`.
     log_inv: f64,
     /// `ψ` at the cap.
@@ -100,9 +121,9 @@ impl Constants {
     fn new(n: usize, lo: f64, hi: f64, a: f64) -> Constants {
         Constants {
             lo,
-            w: hi - lo,
+            inv_w: 1.0 / (hi - lo),
             n: n as f64,
-            num: 2.0 * (1.0 / a).ln(),
+            num_n: 2.0 * (1.0 / a).ln() / n as f64,
             log_inv: (1.0 / a).ln(),
             psi_cap: -(-CAP).ln_1p() - CAP,
         }
@@ -143,9 +164,9 @@ impl State {
     }
 
     #[inline]
-    fn push(&mut self, c: &Constants, x: f64) {
-        let zi = ((x - c.lo) / c.w).clamp(0.0, 1.0);
-        let raw = (c.num / (c.n * self.sigma2_prev)).sqrt();
+    fn push(&mut self, c: &Constants, step: &Step, x: f64) {
+        let zi = ((x - c.lo) * c.inv_w).clamp(0.0, 1.0);
+        let raw = (c.num_n / self.sigma2_prev).sqrt();
         let li = if raw.is_nan() { 0.0 } else { raw.min(CAP) };
         let psi = if li == CAP {
             c.psi_cap
@@ -164,12 +185,11 @@ impl State {
         self.sum_lam += li;
         self.sum_lam_z += li * zi;
         self.sum_z += zi;
-        let t = (self.i + 1) as f64;
-        self.mu_prev = self.sum_z / t;
-        let mu = ((0.5 + self.sum_z) / (t + 1.0)).min(1.0);
+        self.mu_prev = self.sum_z * step.inv_t;
+        let mu = ((0.5 + self.sum_z) * step.inv_t1).min(1.0);
         let e = zi - mu;
         self.sq += e * e;
-        self.sigma2_prev = (0.25 + self.sq) / (t + 1.0);
+        self.sigma2_prev = (0.25 + self.sq) * step.inv_t1;
         self.i += 1;
     }
 
