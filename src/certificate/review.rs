@@ -48,6 +48,13 @@ fn certified_reach(
 ) -> Option<Vec<f64>> {
     o.get("certified_lower")?;
     let mean = column(o, k, "mean", problems);
+    if mean.len() != n_times {
+        problems.push(Problem::new(
+            format!("/body/observables/{k}/mean"),
+            format!("has {} entries for {n_times} recorded times", mean.len()),
+        ));
+        return Some(vec![f64::NAN; n_times]);
+    }
     let ends = |name: &str, problems: &mut Vec<Problem>| -> Vec<Option<f64>> {
         match o[name].as_array() {
             Some(a) if a.len() == n_times => a.iter().map(Value::as_f64).collect(),
