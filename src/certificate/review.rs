@@ -740,6 +740,35 @@ mod tests {
     }
 
     #[test]
+    fn with_a_data_statement_the_claim_is_tested_against_the_certified_reach() {
+        let mut b = body("consistent");
+        // B: mean 0.5 at every time; the certified interval reaches 0.25 from it at t = 2
+        // (well inside the model's 0.42), and nothing is certified at t = 1 (disjoint).
+        b["observables"][1]["mean"] = json!([0.5, 0.5, 0.5]);
+        b["observables"][1]["certified_lower"] = json!([0.49, null, 0.3]);
+        b["observables"][1]["certified_upper"] = json!([0.52, null, 0.75]);
+        let v = read_view(&b).unwrap();
+        let reach = v.observables[1].certified_reach.as_ref().unwrap();
+        assert!((reach[0] - 0.02).abs() < 1e-15 && reach[1].is_nan());
+        assert!((v.observables[1].half_width(2) - 0.25).abs() < 1e-15);
+        // The disjoint time supports no claim, however large.
+        assert!(!check_claim(&v, 10.0, Some("B"), None).unwrap().supported);
+        // At t = 0 alone the certified reach decides (0.02).
+        assert!(
+            check_claim(&v, 0.3, Some("B"), Some(0.5))
+                .unwrap()
+                .supported
+        );
+        // A mean column of another length is a problem with its pointer.
+        b["observables"][1]["mean"] = json!([0.5]);
+        let problems = read_view(&b).unwrap_err();
+        assert!(
+            problems.iter().any(|p| p.path.ends_with("/1/mean")),
+            "{problems:?}"
+        );
+    }
+
+    #[test]
     fn a_claim_just_above_every_half_width_is_supported_and_just_below_is_not() {
         let v = read_view(&body("consistent")).unwrap();
         // Largest half-width: B at t = 2, 0.4 + 0.02 = 0.42.
