@@ -15,7 +15,13 @@ use serde_json::Value;
 use crate::util::{quassay, repo, scratch};
 
 fn budget(args: &[&str]) -> Value {
-    let noise = repo().join("example_runs/chain12/noise.json");
+    budget_with("example_runs/chain12/noise.json", args)
+}
+
+/// `quassay budget --noise RECORD --time-unit us --spectrum -1,1 --json ARGS`, which must
+/// succeed, with a record of the repository.
+fn budget_with(record: &str, args: &[&str]) -> Value {
+    let noise = repo().join(record);
     let out = quassay()
         .arg("budget")
         .arg("--noise")
@@ -229,29 +235,17 @@ fn impossible_targets_and_bad_options() {
 /// the whole command failed with "the run's lattice (square with 1 sites) has no bonds".
 #[test]
 fn a_record_with_bond_sources_plans_a_square_lattice() {
-    let noise = repo().join("example_runs/square3x4/noise.json");
-    let out = quassay()
-        .arg("budget")
-        .arg("--noise")
-        .arg(&noise)
-        .args([
+    let v = budget_with(
+        "example_runs/square3x4/noise.json",
+        &[
             "--lattice",
             "square:10x10",
-            "--time-unit",
-            "us",
-            "--spectrum",
-            "-1,1",
-        ])
-        .args(["--target", "0.1", "--time", "1", "--json"])
-        .output()
-        .unwrap();
-    assert_eq!(
-        out.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
+            "--target",
+            "0.1",
+            "--time",
+            "1",
+        ],
     );
-    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
     // The size search ran (it needs the record on other sizes, down to a side of 2).
     let size = &v["size"];
     assert!(size.is_object() || size.is_array(), "{size}");
