@@ -28,13 +28,20 @@ use super::*;
 pub struct ExposureCache {
     budget: usize,
     /// `q` and the times (bits) the kept values belong to.
-    key: Option<(u64, Vec<u64>)>,
+    key: Option<Key>,
     lookup: HashMap<u64, Vec<usize>>,
     shapes: Vec<(Region, Arc<Values>)>,
     held: usize,
     computed: usize,
     reused: usize,
+    /// Whether terms whose region meets the boundary may take the comparison values.
+    compare: bool,
+    /// The comparison for `key`, once built (`None` inside: it does not apply).
+    comparison: Option<(Key, Option<Arc<Comparison>>)>,
 }
+
+/// `q` and the times, as bits: what kept values belong to.
+type Key = (u64, Vec<u64>);
 
 /// Where the values of one support of a batch come from.
 enum Source {
@@ -53,7 +60,43 @@ impl ExposureCache {
             held: 0,
             computed: 0,
             reused: 0,
+            compare: true,
+            comparison: None,
         }
+    }
+
+    /// Allows (the default) or forbids the comparison with an interior region for the terms of
+    /// later sums (docs/method.md §5, "Comparison with an interior region"); forbidden, every
+    /// term gets its exact region.
+    pub fn set_comparison(&mut self, on: bool) {
+        self.compare = on;
+    }
+
+    /// Whether the comparison is allowed.
+    pub fn comparison_allowed(&self) -> bool {
+        self.compare
+    }
+
+    /// The comparison for `graph` at `times`, built by `build` the first time and kept (the
+    /// comparison depends only on the run's graph, instances and times, fixed per cache).
+    pub fn comparison(
+        &mut self,
+        graph: &WalkGraph,
+        times: &[f64],
+        build: impl FnOnce() -> Option<Comparison>,
+    ) -> Option<Arc<Comparison>> {
+        let key = (
+            graph.growth.to_bits(),
+            times.iter().map(|t| t.to_bits()).collect::<Vec<u64>>(),
+        );
+        if let Some((k, c)) = &self.comparison {
+            if *k == key {
+                return c.clone();
+            }
+        }
+        let c = build().map(Arc::new);
+        self.comparison = Some((key, c.clone()));
+        c
     }
 
     /// `(computed, reused)`: how many supports were computed afresh and how many reused the

@@ -1,7 +1,7 @@
 //! Unit tests of the local statements: bounds against the global ones, scaling in time and
 //! size, and the term-by-term statement.
 
-use super::term_by_term::term_bounds_from;
+use super::term_by_term::{comparison_plan, term_bounds_from};
 use super::*;
 use crate::bounds::global::PointBounds;
 use crate::bounds::light_cone::{ExposureCache, InstanceIndex};
@@ -244,7 +244,8 @@ fn reused_term_exposures_give_the_same_bits_as_fresh_ones() {
             spectra: vec![[-1.0, 1.0]; m],
         };
         let reused = term_bounds(&inp, &terms, &whole).unwrap();
-        let fresh = term_bounds_from(&inp, &terms, &whole, &mut |batch| {
+        let comparison = comparison_plan(&inp, &terms).and_then(|p| p.build(&times));
+        let fresh = term_bounds_from(&inp, &terms, &whole, comparison.as_ref(), &mut |batch| {
             batch
                 .iter()
                 .map(|x| Exposure::new(&graph, x, &inst, &times))
