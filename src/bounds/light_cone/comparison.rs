@@ -4,14 +4,16 @@
 //! injectively), so every walk of the real lattice is a walk of `Z^d` with the same weight, and
 //! the walk sums, the exposures `T_i(t)` and the tail `C(t)` of a single-site support are at
 //! most those of one site of `Z^d` with every bond at `J̃`. Those are computed once, on a
-//! lattice of side `2K + 3` that the region of its centre never leaves (so its numbers are
-//! those of `Z^d`), and kept as a table indexed by the offset of a source's support from the
+//! lattice of side `2K + 5` that the region of its centre never leaves (so its numbers are
+//! those of `Z^d`: a bond source at distance `K` has its far end at `K + 1`, and the bonds
+//! meeting it, counted in `n_Y`, reach `K + 2`), and kept as a table indexed by the offset of a source's support from the
 //! term's site. A term whose region meets the boundary takes the table's values: an upper
 //! bound, looser than its exact region. A term whose region does not meet it keeps its exact
 //! region (equal to the table's, bit for bit, as a unit test checks).
 
 use super::exposure::max_time;
 use super::tail::choose_order;
+use super::walks::ln_rounding_margin;
 use super::*;
 
 /// Largest comparison lattice (sites); past it no comparison is made (a cubic lattice at high
@@ -45,6 +47,8 @@ pub struct Comparison {
     table: Vec<f64>,
     tail: Vec<f64>,
     region_sources: usize,
+    /// The factor applied to compared terms ([`Comparison::factor`]).
+    factor: f64,
 }
 
 fn coords(site: usize, shape: &[usize], strides: &[usize]) -> Vec<usize> {
@@ -106,7 +110,7 @@ impl ComparisonPlan {
         // `WalkGraph::new`, so the comparison lattice's growth is these bits.
         let growth = jtilde * (4 * d - 1) as f64;
         let order = choose_order(jtilde, growth, max_time(times));
-        let side = 2 * order + 3;
+        let side = 2 * (order + 2) + 1;
         side.checked_pow(d as u32)
             .filter(|&s| s <= MAX_COMPARISON_SITES)?;
         Some(ComparisonPlan {
@@ -125,11 +129,17 @@ impl ComparisonPlan {
         self.order
     }
 
+    /// How far from a term's site the comparison region's numbers reach: the sources within
+    /// distance `K` and the bonds meeting them, `K + 2`.
+    fn reach(&self) -> usize {
+        self.order + 2
+    }
+
     /// Whether the region of the single-site support `site` cannot meet the boundary: every
-    /// site within distance `K + 1` exists (then its region is the comparison region, number
+    /// site within distance `K + 2` exists (then its region is the comparison region, number
     /// for number, and the exact computation is kept).
     pub fn interior(&self, site: usize) -> bool {
-        let r = self.order + 1;
+        let r = self.reach();
         coords(site, &self.shape, &self.strides)
             .iter()
             .zip(&self.shape)
@@ -144,13 +154,13 @@ impl ComparisonPlan {
         n_instances.min(ball.saturating_mul(1 + d))
     }
 
-    /// Computes the table: the exposure of the centre of a lattice of side `2K + 3` with every
+    /// Computes the table: the exposure of the centre of a lattice of side `2K + 5` with every
     /// bond at `J̃`, for one source on every site and bond whose offset from the centre can be
     /// the offset of a real source from a real term.
     pub fn build(self, times: &[f64]) -> Option<Comparison> {
         use crate::model::lattice::{Boundary, Lattice};
         let d = self.shape.len();
-        let r = self.order + 1;
+        let r = self.reach();
         let side = 2 * r + 1;
         let geometry = match d {
             1 => crate::model::lattice::Geometry::Chain,
@@ -223,6 +233,7 @@ impl ComparisonPlan {
         }
         let tail = (0..n_t).map(|k| exposure.tail_per_bond(k)).collect();
         Some(Comparison {
+            factor: (2.0 * ln_rounding_margin(self.order) + 1e-9).exp(),
             region_sources: exposure.region().len(),
             plan: self,
             box_strides,
@@ -237,6 +248,16 @@ impl Comparison {
     /// The plan it was built from.
     pub fn plan(&self) -> &ComparisonPlan {
         &self.plan
+    }
+
+    /// The factor by which the compared terms' coefficients are multiplied: the square of the
+    /// rounding margin and `1 + 10^{-9}`. Not needed for validity (the table values are upper
+    /// bounds already); it makes the computed values of a compared term never fall below the
+    /// computed values of its exact region, whose rounding up (the margin, the crossing found
+    /// by Newton's method, the order of the sums over terms) can otherwise leave them a few
+    /// units in the last place above a comparison value that is equal in exact arithmetic.
+    pub fn factor(&self) -> f64 {
+        self.factor
     }
 
     /// The number of sources in the comparison region (within the offset box).

@@ -170,10 +170,11 @@ pub(super) fn term_bounds_from(
     let mut compared: Vec<(f64, usize)> = Vec::new();
     let mut exact: Vec<usize> = Vec::with_capacity(n_terms);
     for a in 0..n_terms {
-        match comparison.and_then(|cmp| compared_site(cmp.plan(), terms, a, n_sites)) {
-            Some(s) => {
+        match comparison.and_then(|cmp| Some((cmp, compared_site(cmp.plan(), terms, a, n_sites)?)))
+        {
+            Some((cmp, s)) => {
                 let [lo, hi] = terms.spectra[a];
-                compared.push((terms.weights[a].abs() * (hi - lo), s));
+                compared.push((terms.weights[a].abs() * (hi - lo) * cmp.factor(), s));
             }
             None => exact.push(a),
         }

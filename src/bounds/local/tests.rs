@@ -1,7 +1,7 @@
 //! Unit tests of the local statements: bounds against the global ones, scaling in time and
 //! size, and the term-by-term statement.
 
-use super::term_by_term::{comparison_plan, term_bounds_from};
+use super::term_by_term::{comparison_plan, term_bounds_from, COMPARISON_WORK};
 use super::*;
 use crate::bounds::global::PointBounds;
 use crate::bounds::light_cone::{ExposureCache, InstanceIndex};
@@ -405,4 +405,76 @@ fn local_bounds_hold_on_exact_evolutions() {
         }
     }
     assert_eq!(checked, 3 * 3 * 5);
+}
+
+/// The comparison with an interior region (docs/method.md §5) in the term-by-term statement of
+/// a magnetisation on an open square lattice: every term of the sensitivities that is monotone
+/// in them (worst case, systematic part, fluctuation, Efron–Stein variance) is never below the
+/// statement with every term's exact region, and above it somewhere; a sum of interior terms
+/// alone compares no term and gives the same bits. The rule of [`COMPARISON_WORK`] keeps the
+/// exact regions on small lattices (the bundled examples) and compares on large ones.
+#[test]
+fn the_comparison_only_loosens_the_term_by_term_statement() {
+    use crate::bounds::light_cone::ComparisonPlan;
+    let times = [0.0, 0.01, 0.02, 0.03];
+    let l = Lattice::regular(Geometry::Square, &[48, 48], Boundary::Open).unwrap();
+    let n = l.n_sites();
+    let inst = instances(&l, 0.05, 0.02);
+    let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
+    let graph = WalkGraph::new(&l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
+    let support: Vec<usize> = (0..n).collect();
+    let inp = inputs(&graph, &inst, &sources, &support, &times, 10, 1e-3);
+    let whole = Exposure::new(&graph, &support, &inst, &times).unwrap();
+    // Exact regions through the cache (equal to fresh ones to the bit: tested above).
+    let index = InstanceIndex::new(&inst, n);
+    let mut cache = ExposureCache::new(TERMS_BUDGET);
+    let mut fresh = |batch: &[&[usize]]| cache.exposures(&graph, &index, &times, batch);
+    let cmp = ComparisonPlan::new(&graph, &inst, &times)
+        .unwrap()
+        .build(&times)
+        .unwrap();
+    let all = Terms {
+        supports: (0..n).map(|s| vec![s]).collect(),
+        weights: vec![1.0 / n as f64; n],
+        spectra: vec![[-1.0, 1.0]; n],
+    };
+    let with = term_bounds_from(&inp, &all, &whole, Some(&cmp), &mut |b| fresh(b)).unwrap();
+    let without = term_bounds_from(&inp, &all, &whole, None, &mut |b| fresh(b)).unwrap();
+    let interior = (0..n).filter(|&s| cmp.plan().interior(s)).count();
+    assert!(interior > 0, "no interior site: K = {}", cmp.plan().order());
+    assert_eq!(with.compared, n - interior);
+    assert_eq!(without.compared, 0);
+    let mut looser = 0;
+    for (a, b) in with.points.iter().zip(&without.points) {
+        assert!(a.e_wc >= b.e_wc && a.e_sys >= b.e_sys, "{a:?} {b:?}");
+        assert!(a.fluctuation >= b.fluctuation && a.v_noise >= b.v_noise);
+        looser += (a.fluctuation > b.fluctuation) as usize;
+    }
+    assert!(looser >= 2, "the comparison loosened nothing");
+    // Interior terms alone: nothing compared, the same bits.
+    let inner: Vec<usize> = (0..n).filter(|&s| cmp.plan().interior(s)).collect();
+    let some = Terms {
+        supports: inner.iter().map(|&s| vec![s]).collect(),
+        weights: vec![1.0 / n as f64; inner.len()],
+        spectra: vec![[-1.0, 1.0]; inner.len()],
+    };
+    let a = term_bounds_from(&inp, &some, &whole, Some(&cmp), &mut |b| fresh(b)).unwrap();
+    let b = term_bounds_from(&inp, &some, &whole, None, &mut |b| fresh(b)).unwrap();
+    assert_eq!(a.compared, 0);
+    assert_eq!(format!("{a:?}"), format!("{b:?}"));
+    // The rule: this lattice is large enough to compare, a 3 × 4 one (the size of the bundled
+    // examples) is not.
+    assert!(comparison_plan(&inp, &all).is_some());
+    let small = Lattice::regular(Geometry::Square, &[3, 4], Boundary::Open).unwrap();
+    let inst = instances(&small, 0.05, 0.02);
+    let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
+    let graph = WalkGraph::new(&small, &vec![1.0; small.n_bonds()], 1, &inst).unwrap();
+    let support: Vec<usize> = (0..12).collect();
+    let inp = inputs(&graph, &inst, &sources, &support, &times, 10, 1e-3);
+    let all = Terms {
+        supports: (0..12).map(|s| vec![s]).collect(),
+        weights: vec![1.0 / 12.0; 12],
+        spectra: vec![[-1.0, 1.0]; 12],
+    };
+    assert!(comparison_plan(&inp, &all).is_none());
 }
