@@ -1,7 +1,7 @@
 //! Unit tests of the local statements: bounds against the global ones, scaling in time and
 //! size, and the term-by-term statement.
 
-use super::term_by_term::{comparison_plan, term_bounds_from, COMPARISON_WORK};
+use super::term_by_term::{comparison_plan, term_bounds_from};
 use super::*;
 use crate::bounds::global::PointBounds;
 use crate::bounds::light_cone::{ExposureCache, InstanceIndex};
