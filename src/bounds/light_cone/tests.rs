@@ -331,7 +331,7 @@ fn unavailable_reasons_are_reported() {
 fn the_comparison_equals_interior_regions_and_bounds_boundary_ones() {
     for (g, times) in [
         (Geometry::Chain, vec![0.0, 0.4, 1.0, 2.0]),
-        (Geometry::Square, vec![0.0, 0.01, 0.05, 0.1]),
+        (Geometry::Square, vec![0.0, 0.01, 0.02, 0.03]),
     ] {
         // K does not depend on the size once the lattice has interior bonds.
         let small = Lattice::regular(g, &vec![5; g.dimension()], Boundary::Open).unwrap();
@@ -389,6 +389,23 @@ fn the_comparison_equals_interior_regions_and_bounds_boundary_ones() {
             "{g:?}: {interior} / {boundary}"
         );
         assert!(looser > boundary, "{g:?}: {looser} looser values");
+        // The accumulation over the whole lattice adds exactly c · value for every slot (a
+        // corner, a site near the middle, a site at the far end).
+        for x in [0, l.n_sites() / 2 + 1, l.n_sites() - 2] {
+            for k in 0..times.len() {
+                let mut row = vec![0.0f64; cmp.row_len()];
+                cmp.accumulate(k, 0.75, x, &mut row);
+                for i in 0..inst.len() {
+                    let slot = cmp.slot(i);
+                    let want = 0.75 * cmp.value(k, slot, x);
+                    assert_eq!(
+                        row[slot].to_bits(),
+                        want.to_bits(),
+                        "{g:?} site {x} slot {slot}"
+                    );
+                }
+            }
+        }
     }
 }
 
