@@ -36,8 +36,8 @@ pub struct ExposureCache {
     reused: usize,
     /// Whether terms whose region meets the boundary may take the comparison values.
     compare: bool,
-    /// The comparison for `key`, once built (`None` inside: it does not apply).
-    comparison: Option<(Key, Option<Arc<Comparison>>)>,
+    /// The last comparison built, with its plan and times (`None` inside: it could not be built).
+    comparison: Option<(ComparisonPlan, Vec<u64>, Option<Arc<Comparison>>)>,
 }
 
 /// `q` and the times, as bits: what kept values belong to.
@@ -77,25 +77,18 @@ impl ExposureCache {
         self.compare
     }
 
-    /// The comparison for `graph` at `times`, built by `build` the first time and kept (the
-    /// comparison depends only on the run's graph, instances and times, fixed per cache).
-    pub fn comparison(
-        &mut self,
-        graph: &WalkGraph,
-        times: &[f64],
-        build: impl FnOnce() -> Option<Comparison>,
-    ) -> Option<Arc<Comparison>> {
-        let key = (
-            graph.growth.to_bits(),
-            times.iter().map(|t| t.to_bits()).collect::<Vec<u64>>(),
-        );
-        if let Some((k, c)) = &self.comparison {
-            if *k == key {
+    /// The comparison of `plan` at `times`: built the first time and kept while the plan and the
+    /// times stay the same (the plan holds everything the table depends on besides the times:
+    /// the lattice, `J̃`, `K` and where every instance sits).
+    pub fn comparison(&mut self, plan: ComparisonPlan, times: &[f64]) -> Option<Arc<Comparison>> {
+        let bits: Vec<u64> = times.iter().map(|t| t.to_bits()).collect();
+        if let Some((p, t, c)) = &self.comparison {
+            if *p == plan && *t == bits {
                 return c.clone();
             }
         }
-        let c = build().map(Arc::new);
-        self.comparison = Some((key, c.clone()));
+        let c = plan.clone().build(times).map(Arc::new);
+        self.comparison = Some((plan, bits, c.clone()));
         c
     }
 

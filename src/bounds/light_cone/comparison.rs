@@ -18,11 +18,11 @@ use super::*;
 
 /// Largest comparison lattice (sites); past it no comparison is made (a cubic lattice at high
 /// orders).
-const MAX_COMPARISON_SITES: usize = 1 << 22;
+const MAX_COMPARISON_SITES: usize = 1 << 19;
 
 /// What a comparison needs before its table is computed: the lattice's coordinates, the order
 /// `K` of the comparison region and where each instance's support sits.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct ComparisonPlan {
     shape: Vec<usize>,
     strides: Vec<usize>,

@@ -73,8 +73,11 @@ fn compared_site(plan: &ComparisonPlan, terms: &Terms, a: usize, n_sites: usize)
 /// Work: one region search per term (time proportional to the term's region); the walk sums
 /// and exposures are computed once per region shape and reused, to the bit, by the terms whose
 /// region has the same shape (translates on a uniform lattice away from its boundary:
-/// [`ExposureCache`]). The sums over terms run in parallel over times, each value summed in
-/// term order. Memory: `instances × times` values ([`TERMS_BUDGET`]).
+/// [`ExposureCache`]). On a uniform open lattice, when enough single-site terms have regions
+/// that meet the boundary ([`COMPARISON_WORK`]), those terms take the values of one interior
+/// region instead (docs/method.md §5.1: an upper bound, slightly looser). The sums over terms
+/// run in parallel over times, each value summed in term order (exact terms first, then the
+/// compared ones). Memory: `instances × times` values ([`TERMS_BUDGET`]).
 pub fn term_bounds(
     inp: &LocalInputs,
     terms: &Terms,
@@ -96,7 +99,7 @@ fn comparison_of(
         return None;
     }
     let plan = comparison_plan(inp, terms)?;
-    cache.comparison(inp.graph, inp.times, || plan.build(inp.times))
+    cache.comparison(plan, inp.times)
 }
 
 /// As [`term_bounds`], with the exposures of the terms taken from `cache` (kept across
