@@ -9,7 +9,9 @@
 //! `cargo bench --bench sums -- chain 10000 square 100` (chains of n sites, square lattices of
 //! L × L sites); `QUASSAY_BENCH_TMAX` (default 4 µs) and `QUASSAY_BENCH_TIMES` (default 21)
 //! set the time grid `0, t_max/(T−1), …, t_max`. `-- dump` prints digests of the numbers
-//! instead (see `dump`).
+//! instead (see `dump`); `-- loosening square 30` runs each case with and without the
+//! comparison with an interior region (docs/method.md §5) and prints by how much the
+//! comparison loosens the term-by-term fluctuation term.
 
 use std::time::Instant;
 
@@ -34,7 +36,14 @@ fn env_or(name: &str, default: f64) -> f64 {
 
 /// Invented scenario: bond norm 0.1 MHz (a weakly coupled XXZ model), a uniform detuning of
 /// 2 kHz on every site and a two-point jitter of 0.5 kHz on every bond, times in µs.
-fn case(geometry: Geometry, shape: &[usize], times: &[f64]) {
+/// The bounds of the magnetisation and the wall time; `compare` allows the comparison with an
+/// interior region (docs/method.md §5).
+fn case(
+    geometry: Geometry,
+    shape: &[usize],
+    times: &[f64],
+    compare: bool,
+) -> (quassay::bounds::run_bounds::ObservableBounds, f64) {
     let lattice = Lattice::regular(geometry, shape, Boundary::Open).unwrap();
     let n = lattice.n_sites();
     let khz = 2.0 * std::f64::consts::PI * 1e-3; // kHz → rad/µs
@@ -97,12 +106,18 @@ fn case(geometry: Geometry, shape: &[usize], times: &[f64]) {
         Simultaneity::Simultaneous,
     )
     .unwrap();
+    ev.set_comparison(compare);
     let b = ev.observable("magnetisation", 2.0, &support, Some(&terms), &sums);
     let elapsed = start.elapsed().as_secs_f64();
-    let tbt = b.term_by_term.as_ref().map(|t| t.n_terms).unwrap_or(0);
+    let (tbt, compared) = b
+        .term_by_term
+        .as_ref()
+        .map(|t| (t.n_terms, t.compared))
+        .unwrap_or((0, 0));
     let last = b.points.len() - 1;
     println!(
-        "{:>6} {:>9} {:>8} {:>6} {:>9.2} s   E_avg(t_max) = {:.6e} ({}), term-by-term terms {}; {}",
+        "{:>6} {:>9} {:>8} {:>6} {:>9.2} s   E_avg(t_max) = {:.6e} ({}), term-by-term terms {} \
+         ({} compared); {}",
         geometry.as_str(),
         shape
             .iter()
@@ -115,8 +130,33 @@ fn case(geometry: Geometry, shape: &[usize], times: &[f64]) {
         b.points[last].e_avg,
         b.statements[last].form(),
         tbt,
+        compared,
         b.light_cone.describe().split(';').next().unwrap_or(""),
     );
+    (b, elapsed)
+}
+
+/// `-- loosening square 30`: the term-by-term fluctuation term with the comparison over the
+/// one with every term's exact region, at a few times (the comparison only loosens).
+fn loosening(geometry: Geometry, shape: &[usize], times: &[f64]) {
+    let (with, _) = case(geometry, shape, times, true);
+    let (without, _) = case(geometry, shape, times, false);
+    let (Some(a), Some(b)) = (&with.term_by_term, &without.term_by_term) else {
+        println!("no term-by-term statement");
+        return;
+    };
+    println!("   t     fluctuation with / without comparison    E_avg ratio");
+    for k in (0..times.len()).step_by((times.len() / 5).max(1)) {
+        let (x, y) = (a.points[k], b.points[k]);
+        println!(
+            "{:>6.3}  {:.6e} / {:.6e} = {:.4}   {:.4}",
+            times[k],
+            x.fluctuation,
+            y.fluctuation,
+            x.fluctuation / y.fluctuation,
+            x.e_avg / y.e_avg
+        );
+    }
 }
 
 /// `cargo bench --bench sums -- dump`: hashes of every bit of the fresh exposures of every
@@ -242,7 +282,8 @@ fn main() {
         .map(|k| t_max * k as f64 / (n_t - 1) as f64)
         .collect();
     let mut cases: Vec<(Geometry, Vec<usize>)> = Vec::new();
-    let mut it = args.iter();
+    let loosen = args.first().map(|s| s.as_str()) == Some("loosening");
+    let mut it = args.iter().skip(loosen as usize);
     while let (Some(g), Some(size)) = (it.next(), it.next()) {
         let size: usize = size.parse().expect("a size");
         match g.as_str() {
@@ -267,7 +308,11 @@ fn main() {
     );
     println!("  geom     shape  sources  times      time");
     for (g, shape) in cases {
-        case(g, &shape, &times);
+        if loosen {
+            loosening(g, &shape, &times);
+        } else {
+            case(g, &shape, &times, true);
+        }
     }
     match peak_memory_kib() {
         Some(k) => println!("peak resident memory: {:.0} MiB", k as f64 / 1024.0),

@@ -396,6 +396,13 @@ impl<'a> RunEvaluator<'a> {
         &self.noise_terms[i].1
     }
 
+    /// Allows (the default) or forbids the comparison with an interior region for the terms of
+    /// sums evaluated later (docs/method.md §5); forbidden, every term gets its exact region
+    /// (slower on large lattices, never looser).
+    pub fn set_comparison(&mut self, on: bool) {
+        self.cache.set_comparison(on);
+    }
+
     /// The bounds of one observable of spread `spread` on `support` (sorted; empty: global)
     /// from its sums; `terms` is its term structure, if it is a sum of local terms (then the
     /// term-by-term statement is a third candidate).

@@ -355,6 +355,11 @@ fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
                         "term_by_term": forms(2),
                     },
                 });
+                // Only when the comparison with an interior region was used (docs/method.md
+                // §5.1), so that certificates without it keep their bytes.
+                if t.compared > 0 {
+                    v["term_by_term"]["compared_terms"] = json!(t.compared);
+                }
             }
             if let Some(d) = &b.data {
                 v["data_statement"] = data_json(d);

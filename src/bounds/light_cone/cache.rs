@@ -28,13 +28,20 @@ use super::*;
 pub struct ExposureCache {
     budget: usize,
     /// `q` and the times (bits) the kept values belong to.
-    key: Option<(u64, Vec<u64>)>,
+    key: Option<Key>,
     lookup: HashMap<u64, Vec<usize>>,
     shapes: Vec<(Region, Arc<Values>)>,
     held: usize,
     computed: usize,
     reused: usize,
+    /// Whether terms whose region meets the boundary may take the comparison values.
+    compare: bool,
+    /// The last comparison built, with its plan and times (`None` inside: it could not be built).
+    comparison: Option<(ComparisonPlan, Vec<u64>, Option<Arc<Comparison>>)>,
 }
+
+/// `q` and the times, as bits: what kept values belong to.
+type Key = (u64, Vec<u64>);
 
 /// Where the values of one support of a batch come from.
 enum Source {
@@ -53,7 +60,36 @@ impl ExposureCache {
             held: 0,
             computed: 0,
             reused: 0,
+            compare: true,
+            comparison: None,
         }
+    }
+
+    /// Allows (the default) or forbids the comparison with an interior region for the terms of
+    /// later sums (docs/method.md §5, "Comparison with an interior region"); forbidden, every
+    /// term gets its exact region.
+    pub fn set_comparison(&mut self, on: bool) {
+        self.compare = on;
+    }
+
+    /// Whether the comparison is allowed.
+    pub fn comparison_allowed(&self) -> bool {
+        self.compare
+    }
+
+    /// The comparison of `plan` at `times`: built the first time and kept while the plan and the
+    /// times stay the same (the plan holds everything the table depends on besides the times:
+    /// the lattice, `J̃`, `K` and where every instance sits).
+    pub fn comparison(&mut self, plan: ComparisonPlan, times: &[f64]) -> Option<Arc<Comparison>> {
+        let bits: Vec<u64> = times.iter().map(|t| t.to_bits()).collect();
+        if let Some((p, t, c)) = &self.comparison {
+            if *p == plan && *t == bits {
+                return c.clone();
+            }
+        }
+        let c = plan.clone().build(times).map(Arc::new);
+        self.comparison = Some((plan, bits, c.clone()));
+        c
     }
 
     /// `(computed, reused)`: how many supports were computed afresh and how many reused the

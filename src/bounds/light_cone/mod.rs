@@ -50,9 +50,13 @@
 //! statement may be unavailable ([`Unavailable`]); `region` the bounded search for a support's
 //! region and the per-site index of instances; `walks` the scaled recursion of the walk sums;
 //! `tail` the choice of `K` and the tail bound `C(t)`; `exposure` the per-source series and
-//! the exposure times `T_i(t)`; `cache` the reuse of equal regions across supports.
+//! the exposure times `T_i(t)`; `cache` the reuse of equal regions across supports;
+//! `comparison` the bound of a region that meets the boundary by the interior region of the
+//! same support with every bond at the uniform `J̃` (docs/method.md §5, "Comparison with an
+//! interior region").
 
 mod cache;
+mod comparison;
 mod exposure;
 mod region;
 mod tail;
@@ -63,6 +67,7 @@ use crate::model::lattice::Lattice;
 use crate::model::noise::{Family, Instance};
 
 pub use cache::ExposureCache;
+pub use comparison::{Comparison, ComparisonPlan};
 pub use exposure::{Exposure, Series};
 pub(crate) use region::Region;
 pub use region::{InstanceIndex, RegionSource};

@@ -321,3 +321,111 @@ fn unavailable_reasons_are_reported() {
         Err(Unavailable::GlobalObservable)
     ));
 }
+
+/// The comparison with an interior region (docs/method.md §5): on uniform open chains and
+/// square lattices, every single-site support whose region cannot meet the boundary gets from
+/// the comparison table exactly its exact values (to the bit, tail included), and every other
+/// support gets values never below its exact ones, strictly above for some sources (the
+/// comparison only loosens, and does loosen).
+#[test]
+fn the_comparison_equals_interior_regions_and_bounds_boundary_ones() {
+    for (g, times) in [
+        (Geometry::Chain, vec![0.0, 0.4, 1.0, 2.0]),
+        (Geometry::Square, vec![0.0, 0.01, 0.02, 0.03]),
+    ] {
+        // K does not depend on the size once the lattice has interior bonds.
+        let small = Lattice::regular(g, &vec![5; g.dimension()], Boundary::Open).unwrap();
+        let inst = site_and_bond_instances(&small);
+        let graph = WalkGraph::new(&small, &vec![1.0; small.n_bonds()], 1, &inst).unwrap();
+        let order = ComparisonPlan::new(&graph, &inst, &times).unwrap().order();
+        // Room for a few interior sites on each axis.
+        let side = 2 * order + 5 + 4;
+        let l = Lattice::regular(g, &vec![side; g.dimension()], Boundary::Open).unwrap();
+        let inst = site_and_bond_instances(&l);
+        let graph = WalkGraph::new(&l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
+        let plan = ComparisonPlan::new(&graph, &inst, &times).unwrap();
+        assert_eq!(plan.order(), order);
+        let cmp = plan.build(&times).unwrap();
+        let (mut interior, mut boundary, mut looser) = (0, 0, 0);
+        for x in 0..l.n_sites() {
+            let exact = Exposure::new(&graph, &[x], &inst, &times).unwrap();
+            let inside = cmp.plan().interior(x);
+            if inside {
+                interior += 1;
+                assert_eq!(exact.order(), order);
+                assert_eq!(exact.region().len(), cmp.region_sources(), "{g:?} site {x}");
+            } else {
+                boundary += 1;
+            }
+            for k in 0..times.len() {
+                let (c, e) = (cmp.tail_per_bond(k), exact.tail_per_bond(k));
+                if inside {
+                    assert_eq!(c.to_bits(), e.to_bits(), "{g:?} site {x} tail");
+                } else {
+                    assert!(c * cmp.factor() >= e, "{g:?} site {x} tail {c} < {e}");
+                    assert!(c >= e * (1.0 - 1e-12), "{g:?} site {x} tail {c} ≪ {e}");
+                }
+                for (src, &v) in exact.region().iter().zip(exact.at(k)) {
+                    let w = cmp.value(k, cmp.slot(src.instance), x);
+                    if inside {
+                        assert_eq!(w.to_bits(), v.to_bits(), "{g:?} site {x} source {src:?}");
+                    } else {
+                        // Equal in exact arithmetic where the boundary is out of reach
+                        // of the orders that matter: then rounding decides, and the factor
+                        // of the compared terms covers it.
+                        assert!(w >= v * (1.0 - 1e-12), "{g:?} site {x}: {w} ≪ {v}");
+                        assert!(
+                            w * cmp.factor() >= v,
+                            "{g:?} site {x} source {src:?} k={k}: {w} < {v}; order {} tails {c} {e}",
+                            exact.order()
+                        );
+                        looser += (w > v) as usize;
+                    }
+                }
+            }
+        }
+        assert!(
+            interior >= 4 && boundary > 0,
+            "{g:?}: {interior} / {boundary}"
+        );
+        assert!(looser > boundary, "{g:?}: {looser} looser values");
+        // The accumulation over the whole lattice adds exactly c · value for every slot (a
+        // corner, a site near the middle, a site at the far end).
+        for x in [0, l.n_sites() / 2 + 1, l.n_sites() - 2] {
+            for k in 0..times.len() {
+                let mut row = vec![0.0f64; cmp.row_len()];
+                cmp.accumulate(k, 0.75, x, &mut row);
+                for i in 0..inst.len() {
+                    let slot = cmp.slot(i);
+                    let want = 0.75 * cmp.value(k, slot, x);
+                    assert_eq!(
+                        row[slot].to_bits(),
+                        want.to_bits(),
+                        "{g:?} site {x} slot {slot}"
+                    );
+                }
+            }
+        }
+    }
+}
+
+/// The comparison does not apply where its argument does not hold: bonds with different
+/// `J̃`, a periodic lattice (its walks wrap around), or a support that is not a site or a bond.
+#[test]
+fn the_comparison_needs_uniform_bonds_and_an_open_regular_lattice() {
+    let times = [0.0, 0.5];
+    let l = Lattice::regular(Geometry::Chain, &[40], Boundary::Open).unwrap();
+    let mut inst = site_and_bond_instances(&l);
+    let graph = WalkGraph::new(&l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
+    assert!(ComparisonPlan::new(&graph, &inst, &times).is_some());
+    let mut norms = vec![1.0; l.n_bonds()];
+    norms[7] = 0.5;
+    let uneven = WalkGraph::new(&l, &norms, 1, &inst).unwrap();
+    assert!(ComparisonPlan::new(&uneven, &inst, &times).is_none());
+    inst[3].support = vec![3, 5];
+    assert!(ComparisonPlan::new(&graph, &inst, &times).is_none());
+    let p = Lattice::regular(Geometry::Chain, &[40], Boundary::Periodic).unwrap();
+    let inst = site_and_bond_instances(&p);
+    let graph = WalkGraph::new(&p, &vec![1.0; p.n_bonds()], 1, &inst).unwrap();
+    assert!(ComparisonPlan::new(&graph, &inst, &times).is_none());
+}

@@ -120,8 +120,7 @@ impl Walks {
         // Rounding: ln k! is a sum of k logarithms (absolute error ≤ k·ln k!·ε ≤ k² ln k·ε), and
         // each coefficient's logarithm adds a few terms of that size; the recursion and Horner
         // add ≤ 10(K+2)ε relative. The margin covers all of it with room to spare.
-        let kf = order as f64 + 3.0;
-        let ln_margin = 64.0 * f64::EPSILON * kf * kf * kf.ln() + 1e-12;
+        let ln_margin = ln_rounding_margin(order);
         Walks {
             order,
             growth: q,
@@ -251,6 +250,13 @@ impl Walks {
         }
         series
     }
+}
+
+/// The logarithm of the relative rounding margin of order `K` (module header of the light
+/// cone): `64·2^{-52}·(K+3)² ln(K+3) + 10^{-12}`.
+pub(super) fn ln_rounding_margin(order: usize) -> f64 {
+    let kf = order as f64 + 3.0;
+    64.0 * f64::EPSILON * kf * kf * kf.ln() + 1e-12
 }
 
 /// `p · x^r` for `p ≥ 0`, `0 ≤ x ≤ 1`, through logarithms, so that it underflows only when the

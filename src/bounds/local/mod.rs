@@ -30,7 +30,7 @@ use crate::model::noise::{Instance, Redrawn};
 use rayon::prelude::*;
 
 pub use statement::{combine, combine_all, Statement};
-pub use term_by_term::{term_bounds, term_bounds_cached, TermByTerm};
+pub use term_by_term::{term_bounds, term_bounds_cached, TermByTerm, COMPARISON_WORK};
 
 /// Largest number of dense term-by-term sensitivities (instances × times) computed for one
 /// observable: 2^24 values, 128 MiB. Past it the term-by-term statement is not available.

@@ -3,7 +3,9 @@
 //! term, the sensitivity `E_i = min(s_O t, s_O T_i, Σ_a |w_a| s_a T_{a,i})` per source and time,
 //! and the terms of §3 on those sensitivities.
 
-use crate::bounds::light_cone::{Exposure, ExposureCache, InstanceIndex, Unavailable};
+use crate::bounds::light_cone::{
+    Comparison, ComparisonPlan, Exposure, ExposureCache, InstanceIndex, Unavailable,
+};
 use crate::model::Terms;
 use rayon::prelude::*;
 
@@ -22,6 +24,37 @@ pub struct TermByTerm {
     /// `s_O·T_i(t)` (whole support) or `Σ_a |w_a| s_a T_{a,i}(t)` (term by term), ties going
     /// to the earlier form.
     pub forms: Vec<[usize; 3]>,
+    /// The number of terms whose region meets the boundary and that took the comparison with
+    /// an interior region (docs/method.md §5); 0 when every term has its exact region.
+    pub compared: usize,
+}
+
+/// The least work, in (terms whose region meets the boundary) × (sources per region), from
+/// which those terms take the comparison with an interior region instead of their exact
+/// regions: below it the exact regions are cheap (a few seconds at most) and tighter. A
+/// number fixed by the record and the times, so the choice is made before any data are seen.
+pub const COMPARISON_WORK: usize = 1 << 18;
+
+/// The plan of the comparison if it applies to this sum and pays: single-site terms whose
+/// region meets the boundary, enough of them (see [`COMPARISON_WORK`]).
+pub(super) fn comparison_plan(inp: &LocalInputs, terms: &Terms) -> Option<ComparisonPlan> {
+    let plan = ComparisonPlan::new(inp.graph, inp.instances, inp.times)?;
+    let boundary = (0..terms.supports.len())
+        .filter(|&a| compared_site(&plan, terms, a, inp.graph.lattice().n_sites()).is_some())
+        .count();
+    let work = boundary.saturating_mul(plan.region_estimate(inp.instances.len()));
+    (work >= COMPARISON_WORK).then_some(plan)
+}
+
+/// The site of term `a` if it is a single-site term with a nonzero coefficient whose region
+/// meets the boundary (the terms the comparison replaces).
+fn compared_site(plan: &ComparisonPlan, terms: &Terms, a: usize, n_sites: usize) -> Option<usize> {
+    let [lo, hi] = terms.spectra[a];
+    let c = terms.weights[a].abs() * (hi - lo);
+    match terms.supports[a].as_slice() {
+        &[s] if s < n_sites && c != 0.0 && !plan.interior(s) => Some(s),
+        _ => None,
+    }
 }
 
 /// The term-by-term statement: per source `E_i(t) = min(s_O·t, s_O·T_i(t), Σ_a |w_a| s_a
@@ -40,8 +73,11 @@ pub struct TermByTerm {
 /// Work: one region search per term (time proportional to the term's region); the walk sums
 /// and exposures are computed once per region shape and reused, to the bit, by the terms whose
 /// region has the same shape (translates on a uniform lattice away from its boundary:
-/// [`ExposureCache`]). The sums over terms run in parallel over times, each value summed in
-/// term order. Memory: `instances × times` values ([`TERMS_BUDGET`]).
+/// [`ExposureCache`]). On a uniform open lattice, when enough single-site terms have regions
+/// that meet the boundary ([`COMPARISON_WORK`]), those terms take the values of one interior
+/// region instead (docs/method.md §5.1: an upper bound, slightly looser). The sums over terms
+/// run in parallel over times, each value summed in term order (exact terms first, then the
+/// compared ones). Memory: `instances × times` values ([`TERMS_BUDGET`]).
 pub fn term_bounds(
     inp: &LocalInputs,
     terms: &Terms,
@@ -50,6 +86,20 @@ pub fn term_bounds(
     let index = InstanceIndex::new(inp.instances, inp.graph.lattice().n_sites());
     let mut cache = ExposureCache::new(TERMS_BUDGET);
     term_bounds_cached(inp, terms, whole, &index, &mut cache)
+}
+
+/// The comparison for this sum, if it applies and pays ([`comparison_plan`]) and the cache
+/// allows it; built once per cache.
+fn comparison_of(
+    inp: &LocalInputs,
+    terms: &Terms,
+    cache: &mut ExposureCache,
+) -> Option<std::sync::Arc<Comparison>> {
+    if !cache.comparison_allowed() {
+        return None;
+    }
+    let plan = comparison_plan(inp, terms)?;
+    cache.comparison(plan, inp.times)
 }
 
 /// As [`term_bounds`], with the exposures of the terms taken from `cache` (kept across
@@ -62,7 +112,8 @@ pub fn term_bounds_cached(
     index: &InstanceIndex,
     cache: &mut ExposureCache,
 ) -> Result<TermByTerm, Unavailable> {
-    term_bounds_from(inp, terms, whole, &mut |supports| {
+    let comparison = comparison_of(inp, terms, cache);
+    term_bounds_from(inp, terms, whole, comparison.as_deref(), &mut |supports| {
         cache.exposures(inp.graph, index, inp.times, supports)
     })
 }
@@ -71,11 +122,15 @@ pub fn term_bounds_cached(
 type ExposuresOf<'f> = dyn FnMut(&[&[usize]]) -> Vec<Result<Exposure, Unavailable>> + 'f;
 
 /// [`term_bounds`] with the terms' exposures from `exposures_of` (a batch of supports in, their
-/// exposures in the same order out).
+/// exposures in the same order out), and the single-site terms whose region meets the boundary
+/// bounded by `comparison` when given (docs/method.md §5, "Comparison with an interior
+/// region"): their `T_{a,i}` and `C_a` are those of the comparison region, upper bounds of
+/// the exact ones.
 pub(super) fn term_bounds_from(
     inp: &LocalInputs,
     terms: &Terms,
     whole: &Exposure,
+    comparison: Option<&Comparison>,
     exposures_of: &mut ExposuresOf,
 ) -> Result<TermByTerm, Unavailable> {
     // One term on the whole support with |w| s_a ≥ s_O: the third form is `|w| s_a T_i ≥ s_O
@@ -95,6 +150,7 @@ pub(super) fn term_bounds_from(
                 n_terms: 1,
                 forms: vec![[0, active, 0]; points.len()],
                 points,
+                compared: 0,
             });
         }
     }
@@ -112,15 +168,29 @@ pub(super) fn term_bounds_from(
     let mut acc = vec![0.0f64; values];
     let mut tail = vec![0.0f64; n_t];
     let n_terms = terms.supports.len();
+    let n_sites = inp.graph.lattice().n_sites();
+    // The terms the comparison replaces (in term order) and those with an exact region.
+    let mut compared: Vec<(f64, usize)> = Vec::new();
+    let mut exact: Vec<usize> = Vec::with_capacity(n_terms);
+    for a in 0..n_terms {
+        match comparison.and_then(|cmp| Some((cmp, compared_site(cmp.plan(), terms, a, n_sites)?)))
+        {
+            Some((cmp, s)) => {
+                let [lo, hi] = terms.spectra[a];
+                compared.push((terms.weights[a].abs() * (hi - lo) * cmp.factor(), s));
+            }
+            None => exact.push(a),
+        }
+    }
     let mut start = 0;
-    while start < n_terms {
-        let end = (start + TERMS_CHUNK).min(n_terms);
-        let supports: Vec<&[usize]> = terms.supports[start..end]
+    while start < exact.len() {
+        let end = (start + TERMS_CHUNK).min(exact.len());
+        let supports: Vec<&[usize]> = exact[start..end]
             .iter()
-            .map(|s| s.as_slice())
+            .map(|&a| terms.supports[a].as_slice())
             .collect();
         let mut exposures = Vec::with_capacity(end - start);
-        for (a, e) in (start..end).zip(exposures_of(&supports)) {
+        for (&a, e) in exact[start..end].iter().zip(exposures_of(&supports)) {
             let [lo, hi] = terms.spectra[a];
             let c = terms.weights[a].abs() * (hi - lo);
             let e = e?;
@@ -142,6 +212,26 @@ pub(super) fn term_bounds_from(
             });
         start = end;
     }
+    // The compared terms: per time row (on its own thread), `T` of every site and bond from
+    // the comparison table, added in term order into `by_slot`; the tail `C` of the
+    // comparison region joins the exact terms' tails.
+    let by_slot: Vec<f64> = match comparison {
+        Some(cmp) if !compared.is_empty() => {
+            let len = cmp.row_len();
+            let mut rows = vec![0.0f64; len * n_t];
+            rows.par_chunks_mut(len)
+                .zip(tail.par_iter_mut())
+                .enumerate()
+                .for_each(|(k, (row, tk))| {
+                    for &(c, s) in &compared {
+                        *tk += c * cmp.tail_per_bond(k);
+                        cmp.accumulate(k, c, s, row);
+                    }
+                });
+            rows
+        }
+        _ => Vec::new(),
+    };
     let n_y: Vec<f64> = inp
         .instances
         .iter()
@@ -167,7 +257,15 @@ pub(super) fn term_bounds_from(
             for i in 0..n {
                 let g = inp.s_o * t;
                 let w = inp.s_o * whole_t[i];
-                let a = (acc[k * n + i] + n_y[i] * tail[k]).min(f64::MAX);
+                let a = match comparison {
+                    // The exact terms' sum, then the compared terms' (both in term order).
+                    Some(cmp) if !by_slot.is_empty() => {
+                        let row = &by_slot[k * cmp.row_len()..];
+                        acc[k * n + i] + row[cmp.slot(i)] + n_y[i] * tail[k]
+                    }
+                    _ => acc[k * n + i] + n_y[i] * tail[k],
+                }
+                .min(f64::MAX);
                 let (e, form) = if g <= w && g <= a {
                     (g, 0)
                 } else if w <= a {
@@ -211,5 +309,6 @@ pub(super) fn term_bounds_from(
         n_terms,
         points,
         forms,
+        compared: compared.len(),
     })
 }

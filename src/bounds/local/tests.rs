@@ -1,7 +1,7 @@
 //! Unit tests of the local statements: bounds against the global ones, scaling in time and
 //! size, and the term-by-term statement.
 
-use super::term_by_term::term_bounds_from;
+use super::term_by_term::{comparison_plan, term_bounds_from};
 use super::*;
 use crate::bounds::global::PointBounds;
 use crate::bounds::light_cone::{ExposureCache, InstanceIndex};
@@ -209,6 +209,18 @@ fn an_average_of_n_uncoupled_terms_fluctuates_like_one_over_root_n() {
     assert!((sw - 0.5).abs() < 0.05, "whole-operator exponent {sw}");
 }
 
+/// Runs `f` on the inputs of an observable of spread 2 over every site of `l` (the sources of
+/// [`instances`], bond norms 1, 10 realizations, `p = 10^{-3}`) and its whole-support exposure.
+fn every_site(l: &Lattice, times: &[f64], f: impl FnOnce(&LocalInputs, &Exposure)) {
+    let inst = instances(l, 0.05, 0.02);
+    let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
+    let graph = WalkGraph::new(l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
+    let support: Vec<usize> = (0..l.n_sites()).collect();
+    let inp = inputs(&graph, &inst, &sources, &support, times, 10, 1e-3);
+    let whole = Exposure::new(&graph, &support, &inst, times).unwrap();
+    f(&inp, &whole)
+}
+
 /// The term-by-term statement with exposures reused across translated terms equals the
 /// one with a fresh exposure per term, to the last bit (uniform open chain and square
 /// lattice, staggered weights and nearest-pair terms), and does not depend on the number
@@ -220,56 +232,57 @@ fn reused_term_exposures_give_the_same_bits_as_fresh_ones() {
         (Geometry::Square, vec![50, 50], vec![0.0, 0.01, 0.02]),
     ] {
         let l = Lattice::regular(g, &shape, Boundary::Open).unwrap();
-        let n = l.n_sites();
-        let inst = instances(&l, 0.05, 0.02);
-        let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
-        let graph = WalkGraph::new(&l, &vec![1.0; l.n_bonds()], 1, &inst).unwrap();
-        let support: Vec<usize> = (0..n).collect();
-        let inp = inputs(&graph, &inst, &sources, &support, &times, 10, 1e-3);
-        let whole = Exposure::new(&graph, &support, &inst, &times).unwrap();
-        // Every site of the chain; the middle row of the square lattice (kept short).
-        let row: Vec<usize> = if g == Geometry::Square {
-            (0..50).map(|y| 25 * 50 + y).collect()
-        } else {
-            (0..n).collect()
-        };
-        let mut supports: Vec<Vec<usize>> = row.iter().map(|&s| vec![s]).collect();
-        supports.extend(row.windows(2).map(|w| w.to_vec()));
-        let m = supports.len();
-        let terms = Terms {
-            supports,
-            weights: (0..m)
-                .map(|a| if a % 2 == 0 { 1.0 } else { -0.5 } / n as f64)
-                .collect(),
-            spectra: vec![[-1.0, 1.0]; m],
-        };
-        let reused = term_bounds(&inp, &terms, &whole).unwrap();
-        let fresh = term_bounds_from(&inp, &terms, &whole, &mut |batch| {
-            batch
-                .iter()
-                .map(|x| Exposure::new(&graph, x, &inst, &times))
-                .collect()
-        })
-        .unwrap();
-        assert_eq!(format!("{reused:?}"), format!("{fresh:?}"), "{g:?}");
-        let one = rayon::ThreadPoolBuilder::new()
-            .num_threads(1)
-            .build()
-            .unwrap()
-            .install(|| term_bounds(&inp, &terms, &whole).unwrap());
-        assert_eq!(
-            format!("{reused:?}"),
-            format!("{one:?}"),
-            "{g:?} one thread"
-        );
-        // Reuse happened: far fewer shapes than terms.
-        let index = InstanceIndex::new(&inst, n);
-        let mut cache = ExposureCache::new(TERMS_BUDGET);
-        term_bounds_cached(&inp, &terms, &whole, &index, &mut cache).unwrap();
-        let (computed, again) = cache.counts();
-        let wanted = if g == Geometry::Square { 10 } else { m / 2 };
-        assert!(again > wanted, "{g:?}: {computed} computed, {again} reused");
+        every_site(&l, &times, |inp, whole| reuse_case(g, inp, whole));
     }
+}
+
+/// One case of [`reused_term_exposures_give_the_same_bits_as_fresh_ones`].
+fn reuse_case(g: Geometry, inp: &LocalInputs, whole: &Exposure) {
+    let (inp, n) = (*inp, inp.graph.lattice().n_sites());
+    let (graph, inst, times) = (inp.graph, inp.instances, inp.times);
+    // Every site of the chain; the middle row of the square lattice (kept short).
+    let row: Vec<usize> = if g == Geometry::Square {
+        (0..50).map(|y| 25 * 50 + y).collect()
+    } else {
+        (0..n).collect()
+    };
+    let mut supports: Vec<Vec<usize>> = row.iter().map(|&s| vec![s]).collect();
+    supports.extend(row.windows(2).map(|w| w.to_vec()));
+    let m = supports.len();
+    let terms = Terms {
+        supports,
+        weights: (0..m)
+            .map(|a| if a % 2 == 0 { 1.0 } else { -0.5 } / n as f64)
+            .collect(),
+        spectra: vec![[-1.0, 1.0]; m],
+    };
+    let reused = term_bounds(&inp, &terms, whole).unwrap();
+    let comparison = comparison_plan(&inp, &terms).and_then(|p| p.build(times));
+    let fresh = term_bounds_from(&inp, &terms, whole, comparison.as_ref(), &mut |batch| {
+        batch
+            .iter()
+            .map(|x| Exposure::new(graph, x, inst, times))
+            .collect()
+    })
+    .unwrap();
+    assert_eq!(format!("{reused:?}"), format!("{fresh:?}"), "{g:?}");
+    let one = rayon::ThreadPoolBuilder::new()
+        .num_threads(1)
+        .build()
+        .unwrap()
+        .install(|| term_bounds(&inp, &terms, whole).unwrap());
+    assert_eq!(
+        format!("{reused:?}"),
+        format!("{one:?}"),
+        "{g:?} one thread"
+    );
+    // Reuse happened: far fewer shapes than terms.
+    let index = InstanceIndex::new(inst, n);
+    let mut cache = ExposureCache::new(TERMS_BUDGET);
+    term_bounds_cached(&inp, &terms, whole, &index, &mut cache).unwrap();
+    let (computed, again) = cache.counts();
+    let wanted = if g == Geometry::Square { 10 } else { m / 2 };
+    assert!(again > wanted, "{g:?}: {computed} computed, {again} reused");
 }
 
 /// A sum with one term, `w = 1` and the observable's spectrum, on the observable's
@@ -404,4 +417,73 @@ fn local_bounds_hold_on_exact_evolutions() {
         }
     }
     assert_eq!(checked, 3 * 3 * 5);
+}
+
+/// The comparison with an interior region (docs/method.md §5) in the term-by-term statement of
+/// a magnetisation on an open square lattice: every term of the sensitivities that is monotone
+/// in them (worst case, systematic part, fluctuation, Efron–Stein variance) is never below the
+/// statement with every term's exact region, and above it somewhere; a sum of interior terms
+/// alone compares no term and gives the same bits. The rule of [`COMPARISON_WORK`] keeps the
+/// exact regions on small lattices (the bundled examples) and compares on large ones.
+#[test]
+fn the_comparison_only_loosens_the_term_by_term_statement() {
+    let times = [0.0, 0.01, 0.02, 0.03];
+    let l = Lattice::regular(Geometry::Square, &[48, 48], Boundary::Open).unwrap();
+    every_site(&l, &times, comparison_case);
+    // The rule: a 3 × 4 lattice (the size of the bundled examples) does not compare.
+    let small = Lattice::regular(Geometry::Square, &[3, 4], Boundary::Open).unwrap();
+    every_site(&small, &times, |inp, _| {
+        let all = Terms {
+            supports: (0..12).map(|s| vec![s]).collect(),
+            weights: vec![1.0 / 12.0; 12],
+            spectra: vec![[-1.0, 1.0]; 12],
+        };
+        assert!(comparison_plan(inp, &all).is_none());
+    });
+}
+
+/// The 48 × 48 case of [`the_comparison_only_loosens_the_term_by_term_statement`].
+fn comparison_case(inp: &LocalInputs, whole: &Exposure) {
+    use crate::bounds::light_cone::ComparisonPlan;
+    let (graph, inst, times) = (inp.graph, inp.instances, inp.times);
+    let n = graph.lattice().n_sites();
+    // Exact regions through the cache (equal to fresh ones to the bit: tested above).
+    let index = InstanceIndex::new(inst, n);
+    let mut cache = ExposureCache::new(TERMS_BUDGET);
+    let mut fresh = |batch: &[&[usize]]| cache.exposures(graph, &index, times, batch);
+    let cmp = ComparisonPlan::new(graph, inst, times)
+        .unwrap()
+        .build(times)
+        .unwrap();
+    let all = Terms {
+        supports: (0..n).map(|s| vec![s]).collect(),
+        weights: vec![1.0 / n as f64; n],
+        spectra: vec![[-1.0, 1.0]; n],
+    };
+    let with = term_bounds_from(inp, &all, whole, Some(&cmp), &mut |b| fresh(b)).unwrap();
+    let without = term_bounds_from(inp, &all, whole, None, &mut |b| fresh(b)).unwrap();
+    let interior = (0..n).filter(|&s| cmp.plan().interior(s)).count();
+    assert!(interior > 0, "no interior site: K = {}", cmp.plan().order());
+    assert_eq!(with.compared, n - interior);
+    assert_eq!(without.compared, 0);
+    let mut looser = 0;
+    for (a, b) in with.points.iter().zip(&without.points) {
+        assert!(a.e_wc >= b.e_wc && a.e_sys >= b.e_sys, "{a:?} {b:?}");
+        assert!(a.fluctuation >= b.fluctuation && a.v_noise >= b.v_noise);
+        looser += (a.fluctuation > b.fluctuation) as usize;
+    }
+    assert!(looser >= 2, "the comparison loosened nothing");
+    // Interior terms alone: nothing compared, the same bits.
+    let inner: Vec<usize> = (0..n).filter(|&s| cmp.plan().interior(s)).collect();
+    let some = Terms {
+        supports: inner.iter().map(|&s| vec![s]).collect(),
+        weights: vec![1.0 / n as f64; inner.len()],
+        spectra: vec![[-1.0, 1.0]; inner.len()],
+    };
+    let a = term_bounds_from(inp, &some, whole, Some(&cmp), &mut |b| fresh(b)).unwrap();
+    let b = term_bounds_from(inp, &some, whole, None, &mut |b| fresh(b)).unwrap();
+    assert_eq!(a.compared, 0);
+    assert_eq!(format!("{a:?}"), format!("{b:?}"));
+    // The rule: this lattice is large enough to compare.
+    assert!(comparison_plan(inp, &all).is_some());
 }
