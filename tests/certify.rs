@@ -726,3 +726,38 @@ fn the_bundled_chain_example_is_consistent_with_its_record() {
     assert_eq!(cert["body"]["verdict"]["status"], "consistent");
     assert!(cert["body"]["verdict"]["tests"].as_u64().unwrap() > 100);
 }
+
+/// The envelope of a certificate attached to a public dataset discloses neither the machine
+/// nor its folders (issue "a lab's own data"): certified from absolute paths, the whole file
+/// holds neither the host name nor the scratch directory; `--full-envelope` records both.
+#[test]
+fn the_default_envelope_holds_no_host_name_and_no_directory() {
+    let c = Case::new("chain-detuning.json");
+    let dir = c.dir.path().canonicalize().unwrap();
+    let host = std::fs::read_to_string("/etc/hostname")
+        .map(|s| s.trim().to_owned())
+        .unwrap_or_default();
+    let private = c.path("private.cert.json");
+    c.certify(&["-o", private.to_str().unwrap()]);
+    let text = std::fs::read_to_string(&private).unwrap();
+    let folder = dir.to_str().unwrap();
+    assert!(
+        !text.contains(folder),
+        "the folder {folder} is in the certificate"
+    );
+    let cert: Value = serde_json::from_str(&text).unwrap();
+    assert!(cert["envelope"].get("host").is_none());
+    if host.len() >= 3 {
+        // A short host name could occur by chance (in a digest, say): only longer ones count.
+        assert!(
+            !text.contains(&format!("\"{host}\"")),
+            "the host name is in the certificate"
+        );
+    }
+    let full = c.path("full.cert.json");
+    c.certify(&["-o", full.to_str().unwrap(), "--full-envelope"]);
+    let cert: Value = serde_json::from_str(&std::fs::read_to_string(&full).unwrap()).unwrap();
+    assert!(cert["envelope"]["host"].is_string());
+    let line = cert["envelope"]["command_line"].to_string();
+    assert!(line.contains(folder), "{line}");
+}
