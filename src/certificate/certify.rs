@@ -194,7 +194,7 @@ fn stream_run(
     // is evaluated at the rest, the fidelity statement at the whole ε (docs/method.md §6).
     let share = effective_share(&stream, options, header.as_ref(), n_observables);
     let shares = data_statement::shares(options.confidence, share);
-    let evaluator = match (&header, &model, shares) {
+    let evaluator = match (&header, &model, &shares) {
         (_, _, Err(e)) => Some(Err(Error::Options(e.to_string()))),
         (Some(h), Some(Ok(model)), Ok(shares)) => Some(
             RunEvaluator::new(
@@ -245,7 +245,7 @@ fn stream_run(
     let (to_checks, observables_read) = sync_channel::<ObservableRead>(1);
     let (times, sources) = (&times, &sources);
     // The data statement's failure probability per point, when it has a share.
-    let data = match data_statement::shares(options.confidence, share) {
+    let data = match shares {
         Ok(s) if s.data_epsilon > 0.0 => Some(DataPlan {
             alpha_point: data_statement::alpha_per_point(
                 s.data_epsilon,
