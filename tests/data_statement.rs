@@ -543,7 +543,7 @@ const OBSERVABLE_MEMBERS: [&str; 3] = ["/data_statement", "/certified_lower", "/
 /// hand its digest was compared with the build before the data statement, on both bundled
 /// examples and on simulated runs of every redraw mode: identical); with the default share it
 /// has all of them. Both validate against the schema and `verify` recomputes both. Shares
-/// outside [0, 1) are usage errors (exit 2, formats.md) and write nothing.
+/// outside [0, 1) are usage errors (exit 2, docs/robustness.md "Exit codes") and write nothing.
 #[test]
 fn data_share_0_leaves_the_data_statement_out_and_verify_accepts_both_kinds() {
     let dir = scratch();
