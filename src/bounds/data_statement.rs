@@ -211,21 +211,19 @@ fn down(x: f64) -> f64 {
 /// The term added to the mean interval at time index `k` (see the module header).
 fn added_term(inp: &DataInputs, k: usize, s_o: f64) -> f64 {
     let once = matches!(inp.redrawn, Redrawn::Once);
-    let p = &inp.points[k];
-    let model = if once {
-        p.e_avg
-    } else {
-        cap(s_o, p.e_wc, p.e_sys + p.e_bias)
-    };
-    match inp.local.and_then(|l| l.get(k)) {
-        Some(l) => {
-            let local = if once {
-                l.e_avg
-            } else {
-                cap(s_o, l.e_wc, l.e_sys + l.e_bias)
-            };
-            model.min(local)
+    // The same term of either statement (global or light cone): both are bounds fixed before
+    // the data are seen, so the smaller serves.
+    let term = |e_wc: f64, e_sys: f64, e_bias: f64, e_avg: f64| {
+        if once {
+            e_avg
+        } else {
+            cap(s_o, e_wc, e_sys + e_bias)
         }
+    };
+    let p = &inp.points[k];
+    let model = term(p.e_wc, p.e_sys, p.e_bias, p.e_avg);
+    match inp.local.and_then(|l| l.get(k)) {
+        Some(l) => model.min(term(l.e_wc, l.e_sys, l.e_bias, l.e_avg)),
         None => model,
     }
 }
