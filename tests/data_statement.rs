@@ -597,3 +597,142 @@ fn data_share_0_leaves_the_data_statement_out_and_verify_accepts_both_kinds() {
         assert!(!out.exists(), "{share} wrote a certificate");
     }
 }
+
+/// The exact binomial interval of declared two-outcome observables (docs/method.md §6.1,
+/// "Where Clopper–Pearson is used"), on exact simulations: one realization (noise drawn once,
+/// redrawn every realization, redrawn every shot) and four realizations pooled (drawn once).
+/// Each certificate uses `clopper_pearson` at every point, with the counts the values imply,
+/// and its ends are the library's Clopper–Pearson interval of those counts (itself checked
+/// against mpmath and SciPy fixtures beside the code); the claim and the data statement fail
+/// within the binomial allowance of ε and ε_d.
+#[test]
+fn two_outcome_observables_are_counted_by_the_exact_binomial_interval_and_cover() {
+    use quassay::bounds::data_interval::clopper_pearson;
+    let obs = json!([
+        {"name": "Z_1", "pauli": "Z", "sites": [1], "two_outcomes": true},
+        {"name": "ZZ_1_2", "pauli": "ZZ", "sites": [1, 2], "two_outcomes": true}
+    ]);
+    let detuning = json!([site("detuning", "Z", 0.05, json!({"family": "uniform"}))]);
+    let cases = [
+        ("once", 1, 150),
+        ("every_realization", 1, 150),
+        ("every_shot", 1, 100),
+        ("once", 4, 100),
+    ];
+    let mut failures = Counts::default();
+    for (redrawn, r, trials) in cases {
+        let case = chain_case(
+            "chain4 two outcomes",
+            4,
+            "neel",
+            json!([0.5, 1.0]),
+            obs.clone(),
+            redrawn,
+            detuning.clone(),
+            r,
+            30,
+            trials,
+        );
+        let mut s = scenario_from_value(&case.scenario).unwrap();
+        let dir = scratch();
+        std::fs::write(dir.path().join("noise.json"), to_json_string(&s.noise)).unwrap();
+        s.realizations = r;
+        let mut results = Vec::new();
+        for j in 0..trials {
+            let sim = simulate(&s, s.seed + 1_000 * j as u64);
+            let t = certify_trial(&sim.run, &sim.truth, dir.path());
+            // The body, as certify_trial computed it, once more for the counts.
+            let c = compute_body(
+                &dir.path().join("run.h5"),
+                &dir.path().join("noise.json"),
+                "run.h5".into(),
+                "noise.json".into(),
+                &CertifyOptions::default(),
+            )
+            .unwrap();
+            assert_eq!(c.body["format_minor"], 2);
+            let alpha = c.body["claim"]["probability_split"]["data_statement_per_point"]
+                .as_f64()
+                .unwrap();
+            for (ob, o) in c.body["observables"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .zip(&sim.run.observables)
+            {
+                assert_eq!(ob["two_outcomes"], true);
+                let d = &ob["data_statement"];
+                for k in 0..o.values.ncols() {
+                    assert_eq!(d["method"][k], "clopper_pearson", "{redrawn}");
+                    let count: u64 = o
+                        .values
+                        .column(k)
+                        .iter()
+                        .map(|x| ((x + 1.0) / 2.0 * 30.0).round() as u64)
+                        .sum();
+                    assert_eq!(d["outcome_counts"][k], count);
+                    assert_eq!(d["shots_counted"][k], 30 * r as u64);
+                    let [l, u] = clopper_pearson(count, 30 * r as u64, alpha);
+                    let lo = d["mean_lower"][k].as_f64().unwrap();
+                    let hi = d["mean_upper"][k].as_f64().unwrap();
+                    // The mapped-back ends, rounded outward by a few ulps at most.
+                    assert!(lo <= 2.0 * l - 1.0 && lo >= 2.0 * l - 1.0 - 1e-13);
+                    assert!(hi >= 2.0 * u - 1.0 && hi <= 2.0 * u - 1.0 + 1e-13);
+                }
+            }
+            results.push(t);
+        }
+        let c = Counts::of(&results);
+        let (eps, eps_d) = (results[0].epsilon, results[0].data_epsilon);
+        for (n, f, e) in [(c.n, c.claim, eps), (c.n, c.data, eps_d)] {
+            assert!(
+                f < binomial_critical(n, e, LEVEL),
+                "{redrawn} R={r}: {f} failures in {n}"
+            );
+        }
+        failures.n += c.n;
+        failures.claim += c.claim;
+        failures.data += c.data;
+    }
+    eprintln!(
+        "two outcomes: {} trials, claim failed {}, data statement failed {}",
+        failures.n, failures.claim, failures.data
+    );
+}
+
+/// A value that is not a mean of two outcomes over its shots is refused (exit 1, naming the
+/// dataset and the fix), and an attribute other than 0 or 1 too.
+#[test]
+fn a_two_outcome_declaration_that_the_values_contradict_is_refused() {
+    let case = cases().into_iter().next().unwrap();
+    let mut s = scenario_from_value(&case.scenario).unwrap();
+    s.realizations = 2;
+    let sim = simulate(&s, s.seed);
+    let dir = scratch();
+    let mut run = sim.run.clone();
+    let z = run
+        .observables
+        .iter()
+        .position(|o| o.name == "Z_1")
+        .unwrap();
+    run.observables[z].two_outcomes = true;
+    run.observables[z].shots = Shots::Uniform(1);
+    // With one shot a value is ±1; 0.5 is no count.
+    run.observables[z]
+        .values
+        .mapv_inplace(|x| if x >= 0.0 { 1.0 } else { -1.0 });
+    run.observables[z].values[[1, 0]] = 0.5;
+    let path = dir.path().join("run.h5");
+    write_run(&path, &run, &WriteOptions::default()).unwrap();
+    let out = quassay().arg("inspect").arg(&path).assert().code(1);
+    let text = format!(
+        "{}{}",
+        String::from_utf8_lossy(&out.get_output().stdout),
+        String::from_utf8_lossy(&out.get_output().stderr)
+    );
+    assert!(text.contains("/observables/Z_1/values"), "{text}");
+    assert!(text.contains("two_outcomes"), "{text}");
+    run.observables[z].values[[1, 0]] = 1.0;
+    write_run(&path, &run, &WriteOptions::default()).unwrap();
+    quassay().arg("inspect").arg(&path).assert().code(0);
+}

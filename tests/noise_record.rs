@@ -600,6 +600,7 @@ fn certify_refuses_records_that_do_not_fit_the_run() {
             spectrum_max: 1.0,
             description: None,
             terms: None,
+            two_outcomes: false,
         }],
     };
     let bondless = dir.path().join("bondless.h5");

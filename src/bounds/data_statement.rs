@@ -24,11 +24,13 @@ use rayon::prelude::*;
 
 use super::confidence::Simultaneity;
 use super::data_interval::{
-    betting_interval, empirical_bernstein_columns, empirical_bernstein_interval, MeanMethod,
+    betting_interval, clopper_pearson, empirical_bernstein_columns, empirical_bernstein_interval,
+    map_back, MeanMethod,
 };
 use super::global::{cap, PointBounds};
 use super::local::LocalTerms;
 use crate::model::noise::Redrawn;
+use crate::model::{outcome_count, Shots};
 
 /// The largest number of recorded values (`R·T·K` over the run) for which the betting
 /// interval is computed at every point; above it the closed-form empirical-Bernstein interval
@@ -170,6 +172,9 @@ pub struct DataStatement {
     pub alpha_point: f64,
     /// Per time.
     pub points: Vec<DataPoint>,
+    /// For the exact binomial interval: per time, the outcomes at `spectrum_max` and the
+    /// shots counted, over all realizations pooled.
+    pub counts: Option<Vec<[u64; 2]>>,
 }
 
 /// What [`observable_statement`] needs besides the values.
@@ -187,6 +192,41 @@ pub struct DataInputs<'a> {
     /// Failure probability per point of the interval from the data.
     pub alpha_point: f64,
     pub method: MeanMethod,
+    /// The shots behind the values, when the run file declares that every shot's outcome is
+    /// one of the spectrum's two ends (`two_outcomes`); `None` otherwise.
+    pub two_outcomes: Option<&'a Shots>,
+}
+
+/// Whether the shots of a two-outcome observable at one point can be pooled into one
+/// binomial count (docs/method.md §6.1, "Clopper–Pearson"): all shots behind a point are
+/// independent with one success probability when the noise is drawn once (given the draw),
+/// redrawn every shot (each shot a fresh draw), or when there is one realization.
+pub fn shots_pool(redrawn: Redrawn, realizations: usize) -> bool {
+    matches!(redrawn, Redrawn::Once | Redrawn::EveryShot) || realizations == 1
+}
+
+/// Per time, the outcomes at the spectrum's upper end and the shots, summed over the
+/// realizations in recorded order. The counts were checked when the run file was read
+/// (`check_outcome_counts`); here each is the nearest integer. `None` if a sum overflows
+/// 2⁵³ (counts beyond that are not exact in a double; no run comes near).
+fn pooled_counts(
+    values: ArrayView2<f64>,
+    shots: &Shots,
+    [a, b]: [f64; 2],
+) -> Option<Vec<[u64; 2]>> {
+    const EXACT: u64 = 1 << 53;
+    (0..values.ncols())
+        .map(|k| {
+            let mut count = 0u64;
+            let mut total = 0u64;
+            for (r, &x) in values.column(k).iter().enumerate() {
+                let n = shots.at(r, k);
+                count = count.checked_add(outcome_count(x, n, a, b).0)?;
+                total = total.checked_add(n)?;
+            }
+            (total <= EXACT).then_some([count, total])
+        })
+        .collect()
 }
 
 /// The smallest double above `x` (`f64::next_up`, which is stable only from Rust 1.86, above
@@ -209,8 +249,10 @@ fn down(x: f64) -> f64 {
 }
 
 /// The term added to the mean interval at time index `k` (see the module header).
-fn added_term(inp: &DataInputs, k: usize, s_o: f64) -> f64 {
-    let once = matches!(inp.redrawn, Redrawn::Once);
+fn added_term(inp: &DataInputs, k: usize, s_o: f64, covers_one_draw: bool) -> f64 {
+    // The interval from the data covers `f(μ + g)` of one shared draw (not the mean over
+    // draws) when the noise is drawn once, and when one realization's shots are counted.
+    let once = matches!(inp.redrawn, Redrawn::Once) || covers_one_draw;
     // The same term of either statement (global or light cone): both are bounds fixed before
     // the data are seen, so the smaller serves.
     let term = |e_wc: f64, e_sys: f64, e_bias: f64, e_avg: f64| {
@@ -235,11 +277,31 @@ pub fn observable_statement(values: ArrayView2<f64>, inp: &DataInputs) -> DataSt
     // The points are independent of each other: their intervals for the mean are computed in
     // parallel, each from its own column in realization order, and collected in time order
     // (the same bits on any number of threads).
-    let means: Vec<[f64; 2]> = match inp.method {
+    // A two-outcome observable whose shots can be pooled gets the exact binomial interval
+    // (fixed by the declaration, the redraw mode and R, before any value is read).
+    let counts = match inp.two_outcomes {
+        Some(shots) if shots_pool(inp.redrawn, values.nrows()) => {
+            pooled_counts(values, shots, inp.spectrum)
+        }
+        _ => None,
+    };
+    let method = if counts.is_some() {
+        MeanMethod::ClopperPearson
+    } else {
+        inp.method
+    };
+    let means: Vec<[f64; 2]> = match (&counts, method) {
+        (Some(c), _) => c
+            .iter()
+            .map(|&[k, n]| {
+                let [l, u] = clopper_pearson(k, n, inp.alpha_point);
+                map_back(l, u, a, b)
+            })
+            .collect(),
         // Closed form: every column's recurrence advanced row by row, in blocks of columns
         // on the thread pool (the values are read in storage order; the same bits as column
         // by column).
-        MeanMethod::EmpiricalBernstein => {
+        (None, MeanMethod::EmpiricalBernstein) => {
             let chunk = 64;
             (0..values.ncols().div_ceil(chunk))
                 .into_par_iter()
@@ -254,7 +316,7 @@ pub fn observable_statement(values: ArrayView2<f64>, inp: &DataInputs) -> DataSt
                 })
                 .collect()
         }
-        _ => (0..values.ncols())
+        (None, _) => (0..values.ncols())
             .into_par_iter()
             .map(|k| {
                 let column: Vec<f64> = values.column(k).iter().copied().collect();
@@ -262,10 +324,12 @@ pub fn observable_statement(values: ArrayView2<f64>, inp: &DataInputs) -> DataSt
             })
             .collect(),
     };
+    // Pooled shots of one realization with its own draw cover that draw's value.
+    let covers_one_draw = counts.is_some() && matches!(inp.redrawn, Redrawn::EveryRealization);
     let points = (0..values.ncols())
         .map(|k| {
             let mean_interval = means[k];
-            let added = added_term(inp, k, s_o);
+            let added = added_term(inp, k, s_o, covers_one_draw);
             // Rounded outward by one ulp each; the ideal value lies in the spectrum.
             let interval = [
                 down(mean_interval[0] - added).max(a),
@@ -284,9 +348,10 @@ pub fn observable_statement(values: ArrayView2<f64>, inp: &DataInputs) -> DataSt
         })
         .collect();
     DataStatement {
-        method: inp.method,
+        method,
         alpha_point: inp.alpha_point,
         points,
+        counts,
     }
 }
 

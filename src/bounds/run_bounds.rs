@@ -134,7 +134,9 @@ impl ObservableBounds {
         [self.mean[k] - h, self.mean[k] + h]
     }
 
-    /// Computes the data statement (docs/method.md §6) from the observable's `R × T` values.
+    /// Computes the data statement (docs/method.md §6) from the observable's `R × T` values;
+    /// `two_outcomes` holds the shots when every shot is declared to give one of the spectrum's
+    /// two ends (the exact binomial interval then applies where the shots pool, §6.1).
     pub fn attach_data(
         &mut self,
         values: ndarray::ArrayView2<f64>,
@@ -142,6 +144,7 @@ impl ObservableBounds {
         redrawn: crate::model::noise::Redrawn,
         alpha_point: f64,
         method: super::data_interval::MeanMethod,
+        two_outcomes: Option<&crate::model::Shots>,
     ) {
         let model: Vec<[f64; 2]> = (0..self.points.len()).map(|k| self.interval(k)).collect();
         let inputs = DataInputs {
@@ -152,6 +155,7 @@ impl ObservableBounds {
             redrawn,
             alpha_point,
             method,
+            two_outcomes,
         };
         self.data = Some(observable_statement(values, &inputs));
     }

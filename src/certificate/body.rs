@@ -162,6 +162,14 @@ pub fn build_body(
         if let Value::Array(a) = &mut body["assumptions"] {
             a.push(json!(claim::DATA_ASSUMPTION));
         }
+        // Format 1.2: observables declared to have two outcomes (their shots counted by the
+        // exact binomial interval where they pool, docs/method.md §6.1).
+        if run.observables.iter().any(|o| o.two_outcomes) {
+            body["format_minor"] = json!(2);
+            if let Value::Array(a) = &mut body["assumptions"] {
+                a.push(json!(claim::TWO_OUTCOME_ASSUMPTION));
+            }
+        }
     }
     // The three large members are moved in: `json!` would serialise (copy) them, doubling the
     // body's peak memory for runs with many points.
@@ -362,6 +370,9 @@ fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
                 }
             }
             if let Some(d) = &b.data {
+                if o.two_outcomes {
+                    v["two_outcomes"] = json!(true);
+                }
                 v["data_statement"] = data_json(d);
                 let certified = |i: usize| -> Vec<Value> {
                     (0..n)
@@ -397,7 +408,7 @@ fn disjoint_times(b: &ObservableBounds) -> Vec<usize> {
 /// An observable's data statement (docs/certificate.md, format 1.1).
 fn data_json(d: &DataStatement) -> Value {
     let p = &d.points;
-    json!({
+    let mut v = json!({
         "method": p.iter().map(|_| d.method.as_str()).collect::<Vec<_>>(),
         "failure_probability_per_point": num(d.alpha_point),
         "mean_lower": column(p.iter().map(|x| x.mean_interval[0])),
@@ -409,7 +420,13 @@ fn data_json(d: &DataStatement) -> Value {
             .iter()
             .map(|x| if x.data_narrower { "data" } else { "model" })
             .collect::<Vec<_>>(),
-    })
+    });
+    // Format 1.2: the pooled counts behind the exact binomial interval.
+    if let Some(c) = &d.counts {
+        v["outcome_counts"] = json!(c.iter().map(|x| x[0]).collect::<Vec<_>>());
+        v["shots_counted"] = json!(c.iter().map(|x| x[1]).collect::<Vec<_>>());
+    }
+    v
 }
 
 fn fidelity_json(run: &RunOutline, bounds: &RunBounds) -> Value {

@@ -32,7 +32,7 @@ use crate::inputs::noise_record::read_noise_record;
 use crate::inputs::run_file::{
     open_run, recycle_storage, ContentSink, NoContent, ObservableRead, RunOutline,
 };
-use crate::model::{NoiseModel, NoiseRecord};
+use crate::model::{NoiseModel, NoiseRecord, Redrawn};
 
 pub use super::body::Loaded;
 
@@ -137,13 +137,15 @@ pub fn compute_body(
 }
 
 /// The data share in force: the one asked for, or 0 when no data statement could narrow the
-/// interval for runs of this shape (one realization, say; docs/method.md §6). Fixed by the
-/// run's shape and the options, before any value is read.
+/// interval for runs of this shape (one realization without declared two-outcome
+/// observables, say; docs/method.md §6). Fixed by the run's shape, its declarations, the redraw
+/// mode and the options, before any value is read.
 fn effective_share(
     stream: &crate::inputs::run_file::RunStream,
     options: &CertifyOptions,
     header: Option<&RunOutline>,
     n_observables: usize,
+    redrawn: Option<Redrawn>,
 ) -> f64 {
     let (Some(r), Some(h)) = (stream.first_realizations(), header) else {
         return options.data_share;
@@ -154,7 +156,11 @@ fn effective_share(
     let points = h.times.len() * n_observables;
     let alpha = data_statement::alpha_per_point(s.data_epsilon, points, options.simultaneity);
     let method = data_statement::method_for(r, h.times.len(), n_observables);
-    if data_statement::can_narrow(r, alpha, method) {
+    // The exact binomial interval of pooled shots is narrower than the range for any count.
+    let binomial = redrawn.is_some_and(|m| data_statement::shots_pool(m, r))
+        && alpha > 0.0
+        && stream.any_two_outcomes();
+    if binomial || data_statement::can_narrow(r, alpha, method) {
         options.data_share
     } else {
         0.0
@@ -192,7 +198,17 @@ fn stream_run(
     };
     // The data statement takes its share of ε before any value is read; the model statement
     // is evaluated at the rest, the fidelity statement at the whole ε (docs/method.md §6).
-    let share = effective_share(&stream, options, header.as_ref(), n_observables);
+    let redrawn_mode = match &model {
+        Some(Ok(m)) => Some(m.redrawn),
+        _ => None,
+    };
+    let share = effective_share(
+        &stream,
+        options,
+        header.as_ref(),
+        n_observables,
+        redrawn_mode,
+    );
     let shares = data_statement::shares(options.confidence, share);
     let evaluator = match (&header, &model, &shares) {
         (_, _, Err(e)) => Some(Err(Error::Options(e.to_string()))),
@@ -284,6 +300,7 @@ fn stream_run(
                             times.len(),
                             n_observables,
                         ),
+                        whole.two_outcomes.then_some(&whole.shots),
                     );
                 }
                 let plan = plan.get_or_insert_with(|| {

@@ -56,6 +56,9 @@ pub fn assumptions() -> Vec<&'static str> {
 /// The data statement's own assumption (docs/method.md §6), added when it is part of the claim.
 pub const DATA_ASSUMPTION: &str = "For the data statement: the realizations of each observable are independent evolutions with a common mean (identically prepared and, when the noise is redrawn, with independent draws), the shot averages are unbiased, and the realizations are in the order they were recorded (not reordered after their values were seen).";
 
+/// The assumption added when some observable declares two outcomes (format 1.2).
+pub const TWO_OUTCOME_ASSUMPTION: &str = "For observables with two_outcomes: every shot's outcome is spectrum_min or spectrum_max (one projective measurement with two outcomes, as the run file declares), and the shots behind one recorded value are independent repetitions given the noise draw; where the shots of all realizations are pooled into one binomial count (noise drawn once or redrawn every shot, or one realization), they share one success probability.";
+
 /// The sentence added to an observable's claim when the model and data statements are
 /// disjoint at some times: no interval is certified there.
 pub fn disjoint_sentence(time_indices: &[usize]) -> String {

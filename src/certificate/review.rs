@@ -487,12 +487,14 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
     ));
     if body.get("format_minor").is_some() {
         claim.push(format!(
-            "Two statements are intersected (format 1.1): the model statement above, at \
+            "Two statements are intersected (format 1.{}): the model statement above, at \
              failure probability {} in all, and the data statement, an interval for the mean \
              of the realizations from the values themselves at {} in all ({} per point), \
-             widened by the model's systematic and bias terms (or, for noise drawn once, by \
-             E_avg). The data statement assumes independent realizations with a common mean \
-             and unbiased shot averages; it needs no noise amplitude beyond those terms.",
+             widened by the model's systematic and bias terms (or, where it covers one shared \
+             draw, by E_avg). The data statement assumes independent realizations with a \
+             common mean and unbiased shot averages; it needs no noise amplitude beyond those \
+             terms.",
+            body["format_minor"],
             split["model_statement_total"],
             split["data_statement_total"],
             split["data_statement_per_point"],
@@ -504,9 +506,17 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
                 .map_or(0, |a| a.iter().filter(|x| x == &"data").count());
             let n = d["narrower"].as_array().map_or(0, Vec::len);
             let method = d["method"][0].as_str().unwrap_or("?").replace('_', "-");
+            // Two-outcome observables (format 1.2): the shots themselves were counted.
+            let counted = match (d["shots_counted"][0].as_u64(), d["outcome_counts"].is_array()) {
+                (Some(shots), true) => format!(
+                    ", counting the outcomes of all {shots} shots behind each time, which the run file \
+                     declares two-valued"
+                ),
+                _ => String::new(),
+            };
             claim.push(format!(
-                "{}: the data statement ({method} interval) is the narrower at {narrower} of {n} \
-                 times.",
+                "{}: the data statement ({method} interval{counted}) is the narrower at \
+                 {narrower} of {n} times.",
                 o["name"].as_str().unwrap_or("?")
             ));
         }

@@ -198,6 +198,7 @@ mod tests {
             spectrum_max: 1.0,
             description: None,
             terms: None,
+            two_outcomes: false,
         }
     }
 

@@ -320,6 +320,30 @@ pub(super) fn last_fidelity(c: &Computed) -> String {
     }
 }
 
+/// The intervals for the mean the data statements used: one name, or each with the
+/// observables that used it (the exact binomial one serves only declared two-outcome
+/// observables).
+fn methods_text(c: &Computed) -> String {
+    let mut by_method: Vec<(&str, Vec<&str>)> = Vec::new();
+    for o in &c.bounds.observables {
+        if let Some(d) = &o.data {
+            let m = d.method.as_str();
+            match by_method.iter_mut().find(|(x, _)| *x == m) {
+                Some((_, names)) => names.push(&o.name),
+                None => by_method.push((m, vec![&o.name])),
+            }
+        }
+    }
+    if by_method.len() == 1 {
+        return format!("{} interval", by_method[0].0.replace('_', "-"));
+    }
+    by_method
+        .iter()
+        .map(|(m, names)| format!("{} interval for {}", m.replace('_', "-"), names.join(", ")))
+        .collect::<Vec<_>>()
+        .join("; ")
+}
+
 fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String]) -> String {
     let run = &c.loaded.run;
     let unit = run.time_unit.as_str();
@@ -350,7 +374,7 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
         Some(d) => s.push_str(&format!(
             "claim: confidence {} ({}, {} points): the intersection of the model statement \
              (failure probability {}, {}) and the data statement (failure probability {} per \
-             point, {} interval)\n\n",
+             point, {})\n\n",
             show(
                 cert.body["options"]["confidence"]
                     .as_f64()
@@ -361,7 +385,7 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
             show(split.epsilon),
             c.bounds.statement_summary(),
             show(d.alpha_point),
-            d.method.as_str().replace('_', "-"),
+            methods_text(c),
         )),
     }
     let header = [

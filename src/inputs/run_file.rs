@@ -110,6 +110,10 @@ pub struct ObservableSummary {
     /// Number of terms A, when a term structure is present.
     pub terms: Option<usize>,
     pub description: Option<String>,
+    /// Whether every shot's outcome is declared to be `spectrum_min` or `spectrum_max`
+    /// (written only when declared, so earlier `inspect --json` outputs keep their bytes).
+    #[serde(skip_serializing_if = "std::ops::Not::not")]
+    pub two_outcomes: bool,
 }
 
 /// Shots of one observable: one attribute, or a dataset and its range.
@@ -268,6 +272,21 @@ impl RunStream {
         let (g, names) = self.listing.as_ref()?;
         let d = g.dataset(&format!("{}/values", names.first()?)).ok()?;
         d.shape().first().copied()
+    }
+
+    /// Whether some listed observable declares two outcomes (`two_outcomes = 1`; a cheap look at
+    /// the attributes, before any value is read; a malformed attribute is reported by the
+    /// layout checks).
+    pub fn any_two_outcomes(&self) -> bool {
+        self.listing.as_ref().is_some_and(|(g, names)| {
+            names.iter().any(|n| {
+                g.group(n)
+                    .ok()
+                    .and_then(|o| o.attr("two_outcomes").ok())
+                    .and_then(|a| a.read_scalar::<i64>().ok())
+                    == Some(1)
+            })
+        })
     }
 
     /// How many of the listed observables have an `ideal` dataset (a cheap look at the links,

@@ -13,5 +13,5 @@ pub mod units;
 
 pub use lattice::{Boundary, Geometry, Lattice};
 pub use noise::{ActsOn, Family, Instance, NoiseModel, NoiseRecord, NoiseSource, Redrawn};
-pub use run::{Hamiltonian, Observable, Run, Shots, Terms};
+pub use run::{outcome_count, Hamiltonian, Observable, Run, Shots, Terms};
 pub use units::{FrequencyUnit, TimeUnit};

@@ -88,6 +88,18 @@ impl Shots {
     }
 }
 
+/// The count of outcomes at `spectrum_max` behind a value `x` that is the mean of `shots`
+/// outcomes each equal to `lo` or `hi` (a two-outcome observable, docs/run-format.md):
+/// `k = shots·(x − lo)/(hi − lo)` rounded to the nearest integer within `[0, shots]`, and the
+/// distance of the unrounded count from it (0 for a value formed exactly from a count, a few
+/// ulps of `shots` after rounding).
+pub fn outcome_count(x: f64, shots: u64, lo: f64, hi: f64) -> (u64, f64) {
+    let n = shots as f64;
+    let y = n * ((x - lo) / (hi - lo));
+    let k = y.round().clamp(0.0, n);
+    (k as u64, (y - k).abs())
+}
+
 /// An observable that is a weighted sum of local terms, `O = Σ_a w_a O_a`.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Terms {
@@ -122,6 +134,10 @@ pub struct Observable {
     pub description: Option<String>,
     /// The term structure, if given.
     pub terms: Option<Terms>,
+    /// Whether the run file declares every shot's outcome to be `spectrum_min` or
+    /// `spectrum_max` (attribute `two_outcomes = 1`, docs/run-format.md), so that each value is
+    /// a count of outcomes over its shots.
+    pub two_outcomes: bool,
 }
 
 impl Observable {

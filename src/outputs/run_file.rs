@@ -165,6 +165,10 @@ impl Writer<'_> {
         }
         self.f64_attr(&g, &at, "spectrum_min", o.spectrum_min)?;
         self.f64_attr(&g, &at, "spectrum_max", o.spectrum_max)?;
+        // Written only when declared, so that files without it keep their bytes.
+        if o.two_outcomes {
+            self.int_attr(&g, &at, "two_outcomes", 1)?;
+        }
         if let Some(d) = &o.description {
             self.str_attr(&g, &at, "description", d)?;
         }
@@ -335,6 +339,7 @@ mod tests {
             spectrum_max: 1.0,
             description: Some("Pauli Z on site 1".into()),
             terms: None,
+            two_outcomes: false,
         };
         let m = Observable {
             name: "M".into(),
@@ -351,6 +356,7 @@ mod tests {
                 weights: vec![0.5, 0.25, 0.25],
                 spectra: vec![[-1.0, 1.0]; 3],
             }),
+            two_outcomes: false,
         };
         Run {
             run_id: "invented-0001".into(),

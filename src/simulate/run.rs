@@ -739,6 +739,7 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
                 weights: spec.terms.iter().map(|t| t.weight).collect(),
                 spectra: vec![[-1.0, 1.0]; spec.terms.len()],
             }),
+            two_outcomes: spec.two_outcomes,
         });
         truth_obs.push(TruthObservable {
             name: spec.name.clone(),
@@ -856,6 +857,7 @@ mod tests {
                 weight: 1.0,
             }],
             averaged: true,
+            two_outcomes: false,
         };
         for (p, st) in [
             ("Y", SiteState::PlusI),

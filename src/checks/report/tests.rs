@@ -25,6 +25,7 @@ fn observable(name: &str, values: Array2<f64>, shots: u64, ideal: Option<Vec<f64
         spectrum_max: 1.0,
         description: None,
         terms: None,
+        two_outcomes: false,
     }
 }
 

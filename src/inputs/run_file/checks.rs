@@ -272,6 +272,49 @@ pub fn range_tolerance(lo: f64, hi: f64, relative_rounding: f64) -> f64 {
     SPREAD_SLACK * (hi - lo) + ABSOLUTE_SLACK + relative_rounding * lo.abs().max(hi.abs())
 }
 
+/// For an observable declared to have two outcomes (`two_outcomes = 1`): the message if some
+/// value is not the mean of its shots' outcomes at `lo` and `hi`, i.e. if `shots·(x − lo)/(hi − lo)`
+/// is further from an integer than the storage allows. `tol` is the range tolerance of the
+/// values ([`range_tolerance`]); a value may be off its exact count by `shots·tol/(hi − lo)`.
+/// When that slack reaches 1/4 of a count the counts cannot be told apart, which is a problem
+/// of its own (store the values in float64).
+pub fn check_outcome_counts(
+    values: ArrayView2<f64>,
+    shots: impl Fn(usize, usize) -> u64,
+    lo: f64,
+    hi: f64,
+    tol: f64,
+) -> Option<String> {
+    if lo >= hi || lo.is_nan() || hi.is_nan() {
+        return Some(format!(
+            "declares two outcomes but its spectrum [{lo}, {hi}] has one value; remove the attribute two_outcomes or give spectrum_min < spectrum_max"
+        ));
+    }
+    let mut count = 0usize;
+    let mut first: Option<([usize; 2], f64, u64)> = None;
+    for ((r, k), &x) in values.indexed_iter() {
+        let n = shots(r, k);
+        let slack = n as f64 * tol / (hi - lo);
+        if slack >= 0.25 {
+            return Some(format!(
+                "declares two outcomes, but with {n} shots (at [realization, time] = [{r}, {k}]) values stored this way cannot tell neighbouring counts apart; store values as float64 or remove the attribute two_outcomes"
+            ));
+        }
+        let (_, off) = crate::model::outcome_count(x, n, lo, hi);
+        // `slack` holds 1e-9·shots, far above the rounding of `outcome_count` itself (a few
+        // ulps of `shots`).
+        if off > slack || off.is_nan() {
+            count += 1;
+            first.get_or_insert(([r, k], x, n));
+        }
+    }
+    first.map(|([r, k], x, n)| {
+        format!(
+            "declares two outcomes (every shot gives {lo} or {hi}), but {count} value(s) are not a mean of such outcomes over their shots (first {x} at [realization, time] = [{r}, {k}] with {n} shots); correct the values or shots, or remove the attribute two_outcomes"
+        )
+    })
+}
+
 /// The message for finite values outside `[lo − tol, hi + tol]`, if any; `what` names the
 /// items ("value", "ideal value").
 pub fn check_in_range<'a>(

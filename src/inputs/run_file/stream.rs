@@ -107,6 +107,8 @@ pub struct ObservableOutline {
     pub per_point_shots: bool,
     /// Whether `stderr` is given.
     pub has_stderr: bool,
+    /// Whether every shot's outcome is declared to be one of the spectrum's two ends.
+    pub two_outcomes: bool,
 }
 
 impl ObservableOutline {
@@ -122,6 +124,7 @@ impl ObservableOutline {
             ideal: o.ideal.clone(),
             per_point_shots: matches!(o.shots, crate::model::Shots::PerPoint(_)),
             has_stderr: o.stderr.is_some(),
+            two_outcomes: o.two_outcomes,
         }
     }
 

@@ -192,6 +192,8 @@ pub struct ObservableSpec {
     pub terms: Vec<ObservableTerm>,
     /// Whether it was given as a weighted sum (`over`), and is written with its terms.
     pub averaged: bool,
+    /// Whether the run file declares its two outcomes (`two_outcomes`, a single product only).
+    pub two_outcomes: bool,
 }
 
 /// A checked scenario.

@@ -46,7 +46,11 @@ pub(super) fn observables(rd: &mut Reader, v: &Value, l: &Lattice) -> Option<Vec
 }
 
 fn observable(rd: &mut Reader, v: &Value, path: &str, l: &Lattice) -> Option<ObservableSpec> {
-    let obj = rd.object(v, path, &["name", "pauli", "sites", "over", "weights"])?;
+    let obj = rd.object(
+        v,
+        path,
+        &["name", "pauli", "sites", "over", "weights", "two_outcomes"],
+    )?;
     let n = l.n_sites();
     let name = rd
         .required(obj, path, "name")
@@ -120,6 +124,15 @@ fn observable(rd: &mut Reader, v: &Value, path: &str, l: &Lattice) -> Option<Obs
                     "belongs to an observable given with \"over\"; remove it",
                 );
             }
+            // A single Pauli product has the outcomes ±1: the run file may declare them.
+            let two_outcomes = match obj.get("two_outcomes") {
+                None => false,
+                Some(Value::Bool(b)) => *b,
+                Some(_) => {
+                    rd.push(format!("{path}/two_outcomes"), "must be true or false");
+                    false
+                }
+            };
             let sites = site_list(rd, s, &format!("{path}/sites"))?;
             Some(ObservableSpec {
                 name,
@@ -129,9 +142,16 @@ fn observable(rd: &mut Reader, v: &Value, path: &str, l: &Lattice) -> Option<Obs
                     weight: 1.0,
                 }],
                 averaged: false,
+                two_outcomes,
             })
         }
         (None, Some(over)) => {
+            if obj.contains_key("two_outcomes") {
+                rd.push(
+                    format!("{path}/two_outcomes"),
+                    "belongs to a single product given with \"sites\" (a weighted sum has more than two outcomes); remove it",
+                );
+            }
             let supports: Vec<Vec<usize>> = match over.as_str() {
                 Some("each_site") if arity == 1 => (0..n).map(|i| vec![i]).collect(),
                 Some("each_bond") if arity == 2 => l
@@ -221,6 +241,7 @@ fn observable(rd: &mut Reader, v: &Value, path: &str, l: &Lattice) -> Option<Obs
                     })
                     .collect(),
                 averaged: true,
+                two_outcomes: false,
             })
         }
         (Some(_), Some(_)) => {

@@ -23,8 +23,8 @@ use shots::read_shots;
 use terms::read_terms;
 
 use super::access::{
-    attr_problem, f64_attr, f64_dataset, float_storage, int_vec_attr, note_unknown, open_attr,
-    open_dataset, open_group, string_attr, Collector,
+    attr_problem, f64_attr, f64_dataset, float_storage, int_attr, int_vec_attr, note_unknown,
+    open_attr, open_dataset, open_group, string_attr, Collector,
 };
 use super::checks;
 use super::stream::{ContentSink, ObservableOutline, ObservableRead};
@@ -40,6 +40,7 @@ const OBS_ATTRS: &[&str] = &[
     "spectrum_min",
     "spectrum_max",
     "description",
+    "two_outcomes",
 ];
 const OBS_MEMBERS: &[&str] = &[
     "values",
@@ -209,6 +210,7 @@ fn read_one(
     // Values.
     let values_path = format!("{at}/values");
     let mut dims = None;
+    let mut values_rounding = 0.0;
     let values = match open_dataset(c, g, at, "values") {
         None => {
             if !g.link_exists("values") {
@@ -218,6 +220,7 @@ fn read_one(
         }
         Some(ds) => float_storage(c, &ds, &values_path).and_then(|stored| {
             s.stored_as = Some(stored.describe().to_string());
+            values_rounding = stored.relative_rounding();
             let (r, t) = check_2d(c, &ds.shape(), &values_path, ctx.n_times, None)?;
             s.shape = Some([r, t]);
             if r == 0 {
@@ -360,6 +363,36 @@ fn read_one(
 
     let terms = read_terms(c, g, at, ctx, spectrum, support.as_deref(), &mut s);
 
+    // The declaration that every shot gives one of the spectrum's two ends (a minor
+    // extension of layout v1, docs/run-format.md): 0 or 1, absent means 0.
+    let two_outcomes = match int_attr(c, g, at, "two_outcomes", None) {
+        None | Some(0) => false,
+        Some(1) => true,
+        Some(v) => {
+            attr_problem(
+                c,
+                at,
+                "two_outcomes",
+                format!("is {v}; store 1 (every shot's outcome is spectrum_min or spectrum_max) or 0, or leave it out"),
+            );
+            false
+        }
+    };
+    s.two_outcomes = two_outcomes;
+    // The counts behind the values are checked wherever the values are read whole (inspect
+    // and certify always read them so).
+    if let (true, Some(v), Some((sh, _)), Some((lo, hi))) = (
+        two_outcomes,
+        values.as_ref().and_then(|v| v.kept.as_ref()),
+        shots.as_ref(),
+        spectrum,
+    ) {
+        let tol = checks::range_tolerance(lo, hi, values_rounding);
+        if let Some(m) = checks::check_outcome_counts(v.view(), |r, k| sh.at(r, k), lo, hi, tol) {
+            c.problem(&values_path, m);
+        }
+    }
+
     if c.problems.len() > before {
         return (None, s);
     }
@@ -383,6 +416,7 @@ fn read_one(
         ideal,
         per_point_shots: matches!(data.shots.0, Shots::PerPoint(_)),
         has_stderr: data.stderr.is_some(),
+        two_outcomes,
     };
     let realizations = dims.map_or(0, |d| d.0);
     let shot_sums = match (&data.stderr, &data.shots) {
@@ -407,6 +441,7 @@ fn read_one(
             spectrum_max: hi,
             description: outline.description.clone(),
             terms: outline.terms.clone(),
+            two_outcomes,
         }),
         _ => None,
     };
