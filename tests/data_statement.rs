@@ -304,6 +304,11 @@ fn inside(x: f64, lo: Option<f64>, hi: Option<f64>) -> bool {
 /// Certifies `run` (written to `dir/run.h5`, the record in `dir/noise.json`) and scores it
 /// against the simulation's `truth`.
 fn certify_trial(run: &Run, truth: &Truth, dir: &Path) -> Trial {
+    certify_and_score(run, truth, dir).0
+}
+
+/// [`certify_trial`], also handing back the certificate's body.
+fn certify_and_score(run: &Run, truth: &Truth, dir: &Path) -> (Trial, Value) {
     write_run(&dir.join("run.h5"), run, &WriteOptions::default()).unwrap();
     let c = compute_body(
         &dir.join("run.h5"),
@@ -375,7 +380,7 @@ fn certify_trial(run: &Run, truth: &Truth, dir: &Path) -> Trial {
             t.points += 1;
         }
     }
-    t
+    (t, c.body)
 }
 
 /// Every trial of a case.
@@ -640,21 +645,12 @@ fn two_outcome_observables_are_counted_by_the_exact_binomial_interval_and_cover(
         let mut results = Vec::new();
         for j in 0..trials {
             let sim = simulate(&s, s.seed + 1_000 * j as u64);
-            let t = certify_trial(&sim.run, &sim.truth, dir.path());
-            // The body, as certify_trial computed it, once more for the counts.
-            let c = compute_body(
-                &dir.path().join("run.h5"),
-                &dir.path().join("noise.json"),
-                "run.h5".into(),
-                "noise.json".into(),
-                &CertifyOptions::default(),
-            )
-            .unwrap();
-            assert_eq!(c.body["format_minor"], 2);
-            let alpha = c.body["claim"]["probability_split"]["data_statement_per_point"]
+            let (t, body) = certify_and_score(&sim.run, &sim.truth, dir.path());
+            assert_eq!(body["format_minor"], 2);
+            let alpha = body["claim"]["probability_split"]["data_statement_per_point"]
                 .as_f64()
                 .unwrap();
-            for (ob, o) in c.body["observables"]
+            for (ob, o) in body["observables"]
                 .as_array()
                 .unwrap()
                 .iter()

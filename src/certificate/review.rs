@@ -507,10 +507,21 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
             let n = d["narrower"].as_array().map_or(0, Vec::len);
             let method = d["method"][0].as_str().unwrap_or("?").replace('_', "-");
             // Two-outcome observables (format 1.2): the shots themselves were counted.
-            let counted = match (d["shots_counted"][0].as_u64(), d["outcome_counts"].is_array()) {
-                (Some(shots), true) => format!(
-                    ", counting the outcomes of all {shots} shots behind each time, which the run file \
-                     declares two-valued"
+            let shots: Vec<u64> = d["shots_counted"]
+                .as_array()
+                .into_iter()
+                .flatten()
+                .filter_map(Value::as_u64)
+                .collect();
+            let counted = match (shots.iter().min(), shots.iter().max()) {
+                (Some(lo), Some(hi)) => format!(
+                    ", counting the outcomes of all {} shots behind each time, which the run \
+                     file declares two-valued",
+                    if lo == hi {
+                        lo.to_string()
+                    } else {
+                        format!("{lo} to {hi}")
+                    }
                 ),
                 _ => String::new(),
             };

@@ -275,16 +275,15 @@ impl RunStream {
     }
 
     /// Whether some listed observable declares two outcomes (`two_outcomes = 1`; a cheap look at
-    /// the attributes, before any value is read; a malformed attribute is reported by the
-    /// layout checks).
+    /// the attributes, before any value is read, through the same reader as the layout checks,
+    /// which report a malformed attribute).
     pub fn any_two_outcomes(&self) -> bool {
         self.listing.as_ref().is_some_and(|(g, names)| {
             names.iter().any(|n| {
-                g.group(n)
-                    .ok()
-                    .and_then(|o| o.attr("two_outcomes").ok())
-                    .and_then(|a| a.read_scalar::<i64>().ok())
-                    == Some(1)
+                g.group(n).is_ok_and(|o| {
+                    let mut ignored = access::Collector::default();
+                    access::int_attr(&mut ignored, &o, n, "two_outcomes", None) == Some(1)
+                })
             })
         })
     }
