@@ -72,6 +72,7 @@ fn case(
     let noise = NoiseModel {
         redrawn: Redrawn::EveryRealization,
         instances,
+        device: Default::default(),
     };
     let hamiltonian = Hamiltonian {
         energy_unit: FrequencyUnit::MHz,
@@ -214,6 +215,7 @@ fn dump() {
         let noise = NoiseModel {
             redrawn: Redrawn::EveryRealization,
             instances: instances.clone(),
+            device: Default::default(),
         };
         let hamiltonian = Hamiltonian {
             energy_unit: FrequencyUnit::RadPerUs,

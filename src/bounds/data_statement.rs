@@ -195,6 +195,10 @@ pub struct DataInputs<'a> {
     /// The shots behind the values, when the run file declares that every shot's outcome is
     /// one of the spectrum's two ends (`two_outcomes`); `None` otherwise.
     pub two_outcomes: Option<&'a Shots>,
+    /// Per time, the total of the device-error terms (docs/method.md §7) when the record has
+    /// device sections: added to the bias side; `None` keeps the computation of a record
+    /// without them exactly as it was.
+    pub device: Option<&'a [f64]>,
 }
 
 /// Whether the shots of a two-outcome observable at one point can be pooled into one
@@ -263,9 +267,26 @@ fn added_term(inp: &DataInputs, k: usize, s_o: f64, covers_one_draw: bool) -> f6
         }
     };
     let p = &inp.points[k];
-    let model = term(p.e_wc, p.e_sys, p.e_bias, p.e_avg);
+    let Some(device) = inp.device else {
+        let model = term(p.e_wc, p.e_sys, p.e_bias, p.e_avg);
+        return match inp.local.and_then(|l| l.get(k)) {
+            Some(l) => model.min(term(l.e_wc, l.e_sys, l.e_bias, l.e_avg)),
+            None => model,
+        };
+    };
+    // With device errors (docs/method.md §7): the data contain them, so their deterministic
+    // total is added to the bias side as well. `p.e_avg` already holds it (capped at the
+    // range); the other terms are coherent only.
+    let d = device[k];
+    let with = |e: f64| (e + d).min(s_o);
+    let model = if once {
+        p.e_avg
+    } else {
+        with(cap(s_o, p.e_wc, p.e_sys + p.e_bias))
+    };
     match inp.local.and_then(|l| l.get(k)) {
-        Some(l) => model.min(term(l.e_wc, l.e_sys, l.e_bias, l.e_avg)),
+        Some(l) if once => model.min(with(l.e_avg)),
+        Some(l) => model.min(with(cap(s_o, l.e_wc, l.e_sys + l.e_bias))),
         None => model,
     }
 }

@@ -6,6 +6,7 @@
 //! * [`data_interval`]: confidence intervals for a bounded mean from the data themselves
 //!   (betting, empirical Bernstein, Clopper–Pearson; §6.1);
 //! * [`data_statement`]: the data statement of §6, built on them, and the split of ε;
+//! * [`device`]: the device-error terms (incoherent, preparation, readout; §7);
 //! * [`confidence`]: splitting the user's confidence into the noise and shot parts, Bonferroni;
 //! * [`fidelity`]: the fidelity lower bound (§4);
 //! * [`light_cone`]: Lieb–Robinson walk sums and exposure times `T_i(t)` (§5);
@@ -16,6 +17,7 @@
 pub mod confidence;
 pub mod data_interval;
 pub mod data_statement;
+pub mod device;
 pub mod family;
 pub mod fidelity;
 pub mod global;

@@ -18,16 +18,20 @@ use std::collections::HashMap;
 
 use super::confidence::{self, ConfidenceError, ConfidenceSplit, Simultaneity};
 use super::data_statement::{observable_statement, DataInputs, DataStatement};
+use super::device::{DeviceData, DeviceTerms};
 use super::fidelity::{fidelity_bound, FidelityBound};
 use super::global::{
     evaluate_point, shot_hoeffding, shot_hoeffding_from_sum, shot_normal_from_sum, PointBounds,
     PointInputs, ShotData, SourceData,
 };
-use super::light_cone::{ExposureCache, InstanceIndex, Unavailable, WalkGraph};
+use super::light_cone::{
+    site_instances, ExposureCache, InstanceIndex, SiteCone, Unavailable, WalkGraph,
+};
 use super::local::{
     combine_all, local_bounds_with, term_bounds_cached, LocalInputs, LocalTerms, Statement,
     TermByTerm,
 };
+use crate::model::noise::Instance;
 use crate::model::{Hamiltonian, Lattice, NoiseModel, Run, Terms, TimeUnit};
 
 pub use crate::model::sums::{ObservableSums, ShotSums};
@@ -125,6 +129,9 @@ pub struct ObservableBounds {
     /// The data statement (docs/method.md §6), when asked for; the certified interval is then
     /// the intersection of [`ObservableBounds::interval`] and its interval.
     pub data: Option<DataStatement>,
+    /// The device-error terms (docs/method.md §7), when the record has device sections; their
+    /// total is already in `points` (`E_1`, `E_avg`, the half-width) and `e_avg_global`.
+    pub device: Option<DeviceTerms>,
 }
 
 impl ObservableBounds {
@@ -156,6 +163,7 @@ impl ObservableBounds {
             alpha_point,
             method,
             two_outcomes,
+            device: self.device.as_ref().map(|d| d.total.as_slice()),
         };
         self.data = Some(observable_statement(values, &inputs));
     }
@@ -258,6 +266,10 @@ pub struct RunEvaluator<'a> {
     /// observables on the same sites with the same spectrum (`Z_5` and `X_5`, say) have the
     /// same terms, which are then taken, not computed again (the same bits either way).
     local_terms: HashMap<(Vec<usize>, u64, usize), Vec<LocalTerms>>,
+    /// The device errors' per-run sums, when the record has device sections.
+    device: Option<DeviceData>,
+    /// One pseudo-instance per site, for the device errors' light cones (empty when unused).
+    sites: Vec<Instance>,
 }
 
 impl<'a> RunEvaluator<'a> {
@@ -297,7 +309,22 @@ impl<'a> RunEvaluator<'a> {
             Ok(_) => InstanceIndex::new(&noise.instances, lattice.n_sites()),
             Err(_) => InstanceIndex::new(&[], 0),
         };
+        let device = (!noise.device.is_empty()).then(|| {
+            let n_y: Vec<u32> = match &graph {
+                Ok(g) => (0..lattice.n_sites())
+                    .map(|i| g.bonds_meeting(&[i]) as u32)
+                    .collect(),
+                Err(_) => vec![0; lattice.n_sites()],
+            };
+            DeviceData::new(&noise.device, &n_y)
+        });
+        let sites = match (&device, &graph) {
+            (Some(d), Ok(_)) if d.wants_cone() => site_instances(lattice.n_sites()),
+            _ => Vec::new(),
+        };
         Ok(RunEvaluator {
+            device,
+            sites,
             fidelity_epsilon: split.epsilon,
             times,
             noise,
@@ -433,8 +460,19 @@ impl<'a> RunEvaluator<'a> {
             _ => f64::NAN,
         };
         let (local, term_by_term, light_cone) = self.local_terms(support, spread, terms, r);
+        let device = self.device_terms(name, spread, support, terms);
+        let with_device = |e: f64, k: usize| match &device {
+            // Deterministic terms: added to E_1 and E_avg, the sum capped at the range
+            // (docs/method.md §7).
+            Some(d) => (e + d.total[k]).min(spread),
+            None => e,
+        };
         let noise = self.noise_terms(spread, r);
-        let e_avg_global = noise.iter().map(|p| p.e_avg).collect();
+        let e_avg_global = noise
+            .iter()
+            .enumerate()
+            .map(|(k, p)| with_device(p.e_avg, k))
+            .collect();
         let mut statements = Vec::with_capacity(noise.len());
         let points = noise
             .iter()
@@ -453,12 +491,17 @@ impl<'a> RunEvaluator<'a> {
                     half_width: p.e_avg + e_shot,
                     ..*p
                 };
-                let (point, statement) = combine_all(
+                let (mut point, statement) = combine_all(
                     &global,
                     local.as_ref().and_then(|l| l.get(k)),
                     term_by_term.as_ref().and_then(|t| t.points.get(k)),
                 );
                 statements.push(statement);
+                if device.is_some() {
+                    point.e_one = with_device(point.e_one, k);
+                    point.e_avg = with_device(point.e_avg, k);
+                    point.half_width = point.e_avg + point.e_shot;
+                }
                 point
             })
             .collect();
@@ -474,7 +517,27 @@ impl<'a> RunEvaluator<'a> {
             local,
             term_by_term,
             data: None,
+            device,
         }
+    }
+
+    /// The device-error terms of an observable (docs/method.md §7), with the light cone of its
+    /// support when the lattice allows it; `None` when the record has no device sections.
+    fn device_terms(
+        &self,
+        name: &str,
+        spread: f64,
+        support: &[usize],
+        terms: Option<&Terms>,
+    ) -> Option<DeviceTerms> {
+        let data = self.device.as_ref()?;
+        let cone = match &self.graph {
+            Ok(g) if data.wants_cone() && !support.is_empty() => {
+                SiteCone::new(g, support, &self.sites, self.times).ok()
+            }
+            _ => None,
+        };
+        Some(data.observable(name, spread, support, terms, self.times, cone.as_ref()))
     }
 
     /// The fidelity statement is a claim of its own: when the model statement was given only

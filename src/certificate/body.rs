@@ -8,6 +8,7 @@
 use serde_json::{json, Map, Value};
 
 use super::claim;
+use super::device;
 use super::record::{DatasetDigest, FileRecord};
 use crate::bounds::confidence::Simultaneity;
 use crate::bounds::data_statement::DataStatement;
@@ -170,6 +171,28 @@ pub fn build_body(
                 a.push(json!(claim::TWO_OUTCOME_ASSUMPTION));
             }
         }
+    }
+    // Format 1.3: the device errors of a version 2 record (docs/method.md §7).
+    if !model.device.is_empty() {
+        body["format_minor"] = json!(device::FORMAT_MINOR);
+        if let Value::Array(a) = &mut body["assumptions"] {
+            a.extend(
+                device::assumptions(&model.device)
+                    .into_iter()
+                    .map(|s| json!(s)),
+            );
+        }
+        body["not_covered"] = json!(device::not_covered(&model.device));
+        body["noise"]["format_version"] = json!(record.format_version);
+        body["noise"]["device"] = device::record_json(
+            &record.device,
+            &model.device,
+            &format!("rad/{}", run.time_unit.as_str()),
+        );
+        body["claim"]["device_errors"] = json!(
+            "e_one and e_avg include e_device = e_incoherent + e_preparation + e_readout of each \
+             observable (deterministic, no share of epsilon; docs/method.md §7)"
+        );
     }
     // The three large members are moved in: `json!` would serialise (copy) them, doubling the
     // body's peak memory for runs with many points.
@@ -381,6 +404,9 @@ fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
                 };
                 v["certified_lower"] = Value::Array(certified(0));
                 v["certified_upper"] = Value::Array(certified(1));
+            }
+            if let Some(d) = &b.device {
+                device::observable_json(&mut v, d);
             }
             if let Some(d) = &o.description {
                 v["description"] = json!(d);

@@ -40,20 +40,30 @@ pub use super::body::Loaded;
 pub fn load_inputs(run_path: &Path, noise_path: &Path) -> Result<Loaded> {
     let stream = open_run(run_path)?;
     let noise = read_noise_record(noise_path);
+    let names = stream.observable_names().to_vec();
     let run = stream.read_observables(&mut NoContent, |_| {})?;
     let record = noise?;
-    let model = expand(&record, &run, run_path, noise_path)?;
+    let model = expand(&record, &run, &names, run_path, noise_path)?;
     Ok(Loaded { run, record, model })
 }
 
 fn expand(
     record: &NoiseRecord,
     run: &RunOutline,
+    observable_names: &[String],
     run_path: &Path,
     noise_path: &Path,
 ) -> Result<NoiseModel> {
     record
         .expand(&run.lattice, run.time_unit)
+        .and_then(|model| {
+            let problems = record.device.unknown_readout_names(observable_names);
+            if problems.is_empty() {
+                Ok(model)
+            } else {
+                Err(problems)
+            }
+        })
         .map_err(|problems| Error::Input {
             kind: InputKind::NoiseRecord,
             file: noise_path.to_path_buf(),
@@ -193,7 +203,13 @@ fn stream_run(
     // What can be prepared before the observables are read; a failure here is reported only
     // after the run's own problems.
     let model = match (&header, &noise) {
-        (Some(h), Ok(record)) => Some(expand(record, h, run_path, noise_path)),
+        (Some(h), Ok(record)) => Some(expand(
+            record,
+            h,
+            stream.observable_names(),
+            run_path,
+            noise_path,
+        )),
         _ => None,
     };
     // The data statement takes its share of ε before any value is read; the model statement
@@ -363,7 +379,10 @@ fn stream_run(
     let record = noise?;
     let model = match model {
         Some(m) => m?,
-        None => expand(&record, &run, run_path, noise_path)?,
+        None => {
+            let names: Vec<String> = run.observables.iter().map(|o| o.name.clone()).collect();
+            expand(&record, &run, &names, run_path, noise_path)?
+        }
     };
     let (Some(bounds), Some(checks)) = (bounds, checks) else {
         return Err(Error::Options(

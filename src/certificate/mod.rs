@@ -4,6 +4,7 @@ pub mod body;
 pub mod canonical;
 pub mod certify;
 pub mod claim;
+pub mod device;
 pub mod document;
 /// The digests live with the readers (they are computed as the inputs are read); the old path
 /// stays.

@@ -180,10 +180,10 @@ mod tests {
     fn format_and_version_are_checked() {
         let p = problems_after(|v| {
             v["format"] = json!("quassay-run");
-            v["format_version"] = json!(2);
+            v["format_version"] = json!(3);
         });
         has(&p, "/format", "is `quassay-run`");
-        has(&p, "/format_version", "version 2 is not supported");
+        has(&p, "/format_version", "version 3 is not supported");
         // As in JSON Schema, 1.0 is the integer 1.
         let mut v = example();
         v["format_version"] = json!(1.0);

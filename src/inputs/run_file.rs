@@ -220,6 +220,11 @@ impl RunStream {
         self.outline.as_ref().filter(|_| self.c.problems.is_empty())
     }
 
+    /// The names of the observables the file lists, in name order.
+    pub fn observable_names(&self) -> &[String] {
+        self.listing.as_ref().map_or(&[], |(_, n)| n.as_slice())
+    }
+
     /// The number of observables the file lists (all of them are read, sound or not).
     pub fn n_observables(&self) -> usize {
         self.listing.as_ref().map_or(0, |(_, n)| n.len())

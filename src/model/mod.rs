@@ -5,6 +5,7 @@
 //! range, amplitudes are finite and non-negative, and every frequency is in radians per the
 //! run's time unit.
 
+pub mod device;
 pub mod lattice;
 pub mod noise;
 pub mod run;

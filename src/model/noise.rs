@@ -1,4 +1,4 @@
-//! The noise record (format `quassay-noise` v1) and its expansion into instances.
+//! The noise record (format `quassay-noise` v1 and v2) and its expansion into instances.
 //!
 //! A [`NoiseRecord`] is what the JSON file says, checked but not yet tied to a run. Expanding it
 //! against a run's lattice and time unit gives a [`NoiseModel`]: one [`Instance`] per site, bond
@@ -6,6 +6,7 @@
 //! multiplied by half the spread of the operator it multiplies (docs/method.md §1), so that the
 //! centred operator has norm at most 1.
 
+use super::device::{DeviceModel, DeviceRecord};
 use super::lattice::Lattice;
 use super::units::{FrequencyUnit, TimeUnit};
 use crate::Problem;
@@ -117,6 +118,10 @@ pub struct NoiseRecord {
     pub redrawn: Redrawn,
     pub sources: Vec<NoiseSource>,
     pub calibration: Option<Calibration>,
+    /// The record's `format_version` (1, or 2 with device sections allowed).
+    pub format_version: u64,
+    /// The device sections (version 2; all absent otherwise).
+    pub device: DeviceRecord,
 }
 
 /// One expanded noise source: a single site, bond or listed support.
@@ -149,6 +154,8 @@ impl Instance {
 pub struct NoiseModel {
     pub redrawn: Redrawn,
     pub instances: Vec<Instance>,
+    /// The device errors, one number per site (empty for a record without device sections).
+    pub device: DeviceModel,
 }
 
 impl NoiseSource {
@@ -227,10 +234,19 @@ impl NoiseRecord {
                 });
             }
         }
+        let device = self.device.expand(lattice, time_unit);
+        let device = match device {
+            Ok(d) => d,
+            Err(p) => {
+                problems.extend(p);
+                DeviceModel::default()
+            }
+        };
         if problems.is_empty() {
             Ok(NoiseModel {
                 redrawn: self.redrawn,
                 instances,
+                device,
             })
         } else {
             Err(problems)
@@ -343,6 +359,8 @@ mod tests {
                 mean_offset_uncertainty: 0.05,
             }],
             calibration: None,
+            format_version: 1,
+            device: DeviceRecord::default(),
         }
     }
 

@@ -62,6 +62,13 @@ impl TimeUnit {
             TimeUnit::Ns => -9,
         }
     }
+
+    /// The factor that turns a duration in this unit into one in `other` (an exact power of
+    /// ten): `1 us` is `1e3 ns`. A rate per this unit times `other.factor_to(self)` is the rate
+    /// per `other`.
+    pub fn factor_to(self, other: TimeUnit) -> f64 {
+        exact_power_of_ten(self.exponent() - other.exponent())
+    }
 }
 
 impl FrequencyUnit {

@@ -199,6 +199,8 @@ mod tests {
                 date: Some("2026-11-30".into()),
                 notes: Some("free text".into()),
             }),
+            format_version: 1,
+            device: Default::default(),
         }
     }
 

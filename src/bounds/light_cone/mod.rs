@@ -59,6 +59,7 @@ mod cache;
 mod comparison;
 mod exposure;
 mod region;
+mod sites;
 mod tail;
 mod walks;
 
@@ -71,6 +72,7 @@ pub use comparison::{Comparison, ComparisonPlan};
 pub use exposure::{Exposure, Series};
 pub(crate) use region::Region;
 pub use region::{InstanceIndex, RegionSource};
+pub use sites::{site_instances, SiteCone};
 pub use walks::Walks;
 
 /// Tail tolerance per bond meeting a source, relative to the largest time.

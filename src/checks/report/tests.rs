@@ -58,6 +58,7 @@ fn record(delta: f64, redrawn: Redrawn) -> NoiseModel {
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
         }],
+        device: Default::default(),
     }
 }
 

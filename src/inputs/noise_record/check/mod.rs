@@ -1,4 +1,4 @@
-//! The rules of a `quassay-noise` v1 record, checked by walking a [`serde_json::Value`] by hand.
+//! The rules of a `quassay-noise` record (versions 1 and 2), checked by walking a [`serde_json::Value`] by hand.
 //!
 //! A derived `Deserialize` would stop at the first mistake and could not name every place; this
 //! walker visits the whole record, collects every problem with its JSON pointer, and builds the
@@ -11,8 +11,10 @@
 //! The files: this one holds the key tables, the walk's context and the top level; `values` the
 //! typed getters that record a problem (strings, numbers, choices, objects with their keys);
 //! `source` a noise source (where it acts, its spectrum and amplitude); `distribution` the
-//! family and its parameters.
+//! family and its parameters; `device` the device sections of version 2 (incoherent,
+//! preparation and readout errors).
 
+mod device;
 mod distribution;
 mod source;
 mod values;
@@ -28,8 +30,13 @@ use crate::Problem;
 
 /// The value of `format` in every noise record.
 pub const FORMAT: &str = "quassay-noise";
-/// The only `format_version` this reader understands.
+/// The `format_version` of records without device sections (what the writer produces).
 pub const FORMAT_VERSION: u64 = 1;
+/// The `format_version` that allows the device sections `incoherent`, `preparation` and
+/// `readout` (docs/noise-record.md, "Version 2"); version 1 records read as before.
+pub const FORMAT_VERSION_DEVICE: u64 = 2;
+/// The top-level keys of version 2 only.
+const DEVICE_KEYS: [&str; 3] = ["incoherent", "preparation", "readout"];
 
 /// One allowed key of an object: its name, whether it is required, and what it should hold.
 struct Field {
@@ -56,7 +63,10 @@ const fn opt(key: &'static str, hint: &'static str) -> Field {
 
 const TOP_FIELDS: &[Field] = &[
     req("format", "the string \"quassay-noise\""),
-    req("format_version", "the integer 1"),
+    req(
+        "format_version",
+        "the integer 1, or 2 for a record with device sections",
+    ),
     req(
         "frequency_unit",
         "the unit of every amplitude, e.g. \"rad/us\" or \"MHz\"",
@@ -69,6 +79,18 @@ const TOP_FIELDS: &[Field] = &[
     opt(
         "calibration",
         "an object with optional `method`, `date`, `notes`",
+    ),
+    opt(
+        "incoherent",
+        "(version 2) an array of incoherent channels: jumps with rates, or T1 and T2",
+    ),
+    opt(
+        "preparation",
+        "(version 2) an array of preparation entries with trace distances",
+    ),
+    opt(
+        "readout",
+        "(version 2) an object with `applies_to` and an array of readout `errors`",
     ),
 ];
 
@@ -165,19 +187,36 @@ fn top(ctx: &mut Ctx, v: &Value) -> Option<NoiseRecord> {
             }
         }
     }
+    let mut version = None;
     if let Some(f) = map.get("format_version") {
         match integer(f) {
-            Some(FORMAT_VERSION) => {}
+            Some(n @ (FORMAT_VERSION | FORMAT_VERSION_DEVICE)) => version = Some(n),
             Some(n) => ctx.push(
                 &at("format_version"),
                 format!(
-                    "version {n} is not supported; this quassay reads version {FORMAT_VERSION}"
+                    "version {n} is not supported; this quassay reads versions {FORMAT_VERSION} \
+                     and {FORMAT_VERSION_DEVICE}"
                 ),
             ),
             None => ctx.push(
                 &at("format_version"),
-                format!("must be the integer {FORMAT_VERSION}, got {}", f),
+                format!(
+                    "must be the integer {FORMAT_VERSION} or {FORMAT_VERSION_DEVICE}, got {}",
+                    f
+                ),
             ),
+        }
+    }
+    if version == Some(FORMAT_VERSION) {
+        for key in DEVICE_KEYS.iter().filter(|k| map.contains_key(**k)) {
+            ctx.push(
+                &at(key),
+                format!(
+                    "is a section of format version {FORMAT_VERSION_DEVICE}; set \
+                     `format_version` to {FORMAT_VERSION_DEVICE} (a version {FORMAT_VERSION} \
+                     record has no device sections)"
+                ),
+            );
         }
     }
     let unit = map
@@ -201,11 +240,18 @@ fn top(ctx: &mut Ctx, v: &Value) -> Option<NoiseRecord> {
         None => Some(None),
         Some(c) => calibration(ctx, c, &at("calibration")).map(Some),
     };
+    let device = if version == Some(FORMAT_VERSION) {
+        Some(Default::default())
+    } else {
+        device::device(ctx, map)
+    };
     Some(NoiseRecord {
         frequency_unit: unit?,
         redrawn: redrawn?,
         sources: sources?,
         calibration: calibration?,
+        format_version: version?,
+        device: device?,
     })
 }
 
