@@ -8,6 +8,7 @@ mod budget;
 mod certificate_file;
 mod certify;
 mod data_statement;
+mod device_errors;
 mod hostile;
 mod light_cone;
 mod noise_record;
