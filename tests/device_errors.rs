@@ -319,3 +319,168 @@ fn the_incoherent_term_of_a_local_observable_is_local() {
     let slope = log_log_slope(&times, &c);
     assert!((slope - 3.0).abs() < 0.15, "square slope {slope}");
 }
+
+/// The h5py fixture run's record, in version 2 with every device section, then changed by
+/// `edit`.
+fn v2_record(edit: impl FnOnce(&mut Value)) -> Value {
+    let text = std::fs::read_to_string(reference("noise/valid/chain-detuning.json")).unwrap();
+    let mut v: Value = serde_json::from_str(&text).unwrap();
+    v["format_version"] = serde_json::json!(2);
+    v["incoherent"] = serde_json::json!([
+        {"name": "T1 and T2", "acts_on": "each_site", "t1": 100.0, "t1_uncertainty": 10.0,
+         "t2": 50.0, "t2_uncertainty": 5.0, "time_unit": "us"},
+        {"name": "extra", "acts_on": {"sites": [0]}, "jump": "dephasing", "rate": 2.0,
+         "rate_uncertainty": 0.5, "rate_unit": "1/ms"}
+    ]);
+    v["preparation"] = serde_json::json!([
+        {"acts_on": "each_site", "trace_distance": 0.002, "trace_distance_uncertainty": 0.001}
+    ]);
+    v["readout"] = serde_json::json!({
+        "applies_to": "all",
+        "errors": [{"acts_on": "each_site", "flip_0_to_1": 0.01, "flip_1_to_0": 0.02,
+                    "flip_uncertainty": 0.005}]
+    });
+    edit(&mut v);
+    v
+}
+
+/// Certifies the h5py fixture run with `record`; returns the exit code, standard error and
+/// whether the folder changed.
+fn certify_with(record: &Value) -> (Option<i32>, String, bool, Option<Value>) {
+    let dir = crate::util::scratch();
+    let run = dir.path().join("run.h5");
+    std::fs::copy(reference("h5py/run_f32_gzip.h5"), &run).unwrap();
+    let noise = dir.path().join("noise-v2.json");
+    std::fs::write(&noise, serde_json::to_string_pretty(record).unwrap()).unwrap();
+    let before = crate::util::entries(dir.path());
+    let out = crate::util::quassay()
+        .arg("certify")
+        .arg(&run)
+        .arg("--noise")
+        .arg(&noise)
+        .output()
+        .unwrap();
+    let changed = crate::util::entries(dir.path()) != before;
+    let body = changed.then(|| crate::util::body(&dir.path().join("run.cert.json")));
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+        changed,
+        body,
+    )
+}
+
+/// Bad device sections: exit 1, the file and the JSON pointer named, nothing written.
+#[test]
+fn bad_device_sections_are_refused_with_their_pointer() {
+    let cases: Vec<(Box<dyn FnOnce(&mut Value)>, &str, &str)> = vec![
+        (
+            Box::new(|v| v["incoherent"][1]["rate"] = serde_json::json!(-1.0)),
+            "/incoherent/1/rate",
+            "must be ≥ 0",
+        ),
+        (
+            Box::new(|v| v["incoherent"][0]["t2"] = serde_json::json!(250.0)),
+            "/incoherent/0/t2",
+            "more than 2·T1",
+        ),
+        (
+            Box::new(|v| v["readout"]["errors"][0]["flip_1_to_0"] = serde_json::json!(1.5)),
+            "/readout/errors/0/flip_1_to_0",
+            "lies in [0, 1]",
+        ),
+        (
+            Box::new(|v| v["preparation"][0]["trace_distance"] = serde_json::json!(-0.1)),
+            "/preparation/0/trace_distance",
+            "must be ≥ 0",
+        ),
+        (
+            Box::new(|v| {
+                v["incoherent"][1]
+                    .as_object_mut()
+                    .unwrap()
+                    .remove("rate_unit");
+            }),
+            "/incoherent/1",
+            "`rate_unit` is missing",
+        ),
+        (
+            Box::new(|v| {
+                v["incoherent"][0]
+                    .as_object_mut()
+                    .unwrap()
+                    .remove("time_unit");
+            }),
+            "/incoherent/0",
+            "`time_unit` is missing",
+        ),
+        (
+            Box::new(|v| v["incoherent"][1]["jump"] = serde_json::json!("amplitude_damping")),
+            "/incoherent/1/jump",
+            "unknown value `amplitude_damping`",
+        ),
+        (
+            Box::new(|v| v["format_version"] = serde_json::json!(1)),
+            "/incoherent",
+            "set `format_version` to 2",
+        ),
+        (
+            Box::new(|v| v["readout"]["applies_to"] = serde_json::json!(["no_such_observable"])),
+            "/readout/applies_to/0",
+            "no observable of that name",
+        ),
+    ];
+    for (edit, pointer, words) in cases {
+        let (code, stderr, changed, _) = certify_with(&v2_record(edit));
+        assert_eq!(code, Some(1), "{pointer}: {stderr}");
+        assert!(stderr.contains("noise-v2.json"), "{pointer}: {stderr}");
+        assert!(stderr.contains(pointer), "{pointer}: {stderr}");
+        assert!(stderr.contains(words), "{pointer}: {stderr}");
+        assert!(!changed, "{pointer}: something was written");
+    }
+}
+
+/// A version 2 record certifies (format 1.3, every device term present and included in
+/// `e_avg`); the same record in version 2 without device sections gives the body of version 1
+/// except for the record's own file digest.
+#[test]
+fn a_version_2_record_adds_the_device_terms_and_nothing_else_changes_without_them() {
+    let (code, stderr, written, body) = certify_with(&v2_record(|_| {}));
+    // The fixture's values are not a simulation of this record, so the consistency checks may
+    // say so (exit 3, README "Exit codes"); a certificate is written either way.
+    assert!(
+        matches!(code, Some(0) | Some(3)) && written,
+        "{code:?}: {stderr}"
+    );
+    let body = body.unwrap();
+    assert_eq!(body["format_minor"], 3);
+    assert_eq!(body["noise"]["format_version"], 2);
+    for o in body["observables"].as_array().unwrap() {
+        let dev = crate::util::numbers(&o["e_device"]);
+        let e_avg = crate::util::numbers(&o["e_avg"]);
+        let spread = o["spread"].as_f64().unwrap();
+        assert!(o["e_incoherent"].is_array() && o["e_preparation"].is_array());
+        assert!(o["e_readout"].is_array());
+        for (d, e) in dev.iter().zip(&e_avg) {
+            assert!(*d > 0.0 && (*e >= d.min(spread)), "{} {d} {e}", o["name"]);
+        }
+    }
+    let strip = |v: &Value| {
+        let mut w = v.clone();
+        for key in ["incoherent", "preparation", "readout"] {
+            w.as_object_mut().unwrap().remove(key);
+        }
+        w
+    };
+    let v2 = strip(&v2_record(|_| {}));
+    let mut v1 = v2.clone();
+    v1["format_version"] = serde_json::json!(1);
+    let (_, _, _, b2) = certify_with(&v2);
+    let (_, _, _, b1) = certify_with(&v1);
+    let (mut b1, mut b2) = (b1.unwrap(), b2.unwrap());
+    for b in [&mut b1, &mut b2] {
+        b["inputs"]["noise_record"] = Value::Null;
+    }
+    assert_eq!(b1, b2);
+    assert!(b1.get("format_minor").map_or(true, |m| m != 3));
+}

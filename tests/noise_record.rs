@@ -242,7 +242,7 @@ const INVALID: &[(&str, &str, &str)] = &[
     (
         "wrong-version.json",
         "/format_version",
-        "version 2 is not supported",
+        "version 3 is not supported",
     ),
 ];
 

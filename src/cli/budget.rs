@@ -29,7 +29,7 @@ const MAX_SITES: usize = 1_000_000;
 /// The command line of `quassay budget`.
 #[derive(Debug, clap::Args)]
 pub struct BudgetArgs {
-    /// The noise record (JSON, format quassay-noise v1).
+    /// The noise record (JSON, format quassay-noise v1 or v2).
     #[arg(long, value_name = "NOISE.json")]
     pub noise: PathBuf,
     /// The lattice: chain:N, square:LxW (or square:L) or cubic:LxWxH (or cubic:L).
@@ -406,7 +406,7 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
     let unit = args.time_unit.as_str();
     let text = if args.json {
         let by = |v: &[Pair]| json!({ "averaged": pair_json(&v[0]), "single": pair_json(&v[1]) });
-        let mut s = serde_json::to_string_pretty(&json!({
+        let mut j = json!({
             "noise_record": args.noise.display().to_string(),
             "lattice": { "geometry": prob.geometry.as_str(), "shape": shape,
                          "boundary": prob.boundary.as_str() },
@@ -439,8 +439,11 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
             },
             "table": table,
             "gain_exponent": slopes.iter().map(|(w, s)| (w.to_string(), json!(s))).collect::<serde_json::Map<_, _>>(),
-        }))
-        .unwrap_or_default();
+        });
+        if prob.record.device != Default::default() {
+            j["device_errors"] = json!(DEVICE_NOTE);
+        }
+        let mut s = serde_json::to_string_pretty(&j).unwrap_or_default();
         s.push('\n');
         s
     } else {
@@ -460,6 +463,10 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
     print_stdout(&text)?;
     Ok(Outcome::Success)
 }
+
+/// Said when the record has device sections, which the answers do not include yet.
+const DEVICE_NOTE: &str = "note: the record's device errors (incoherent, preparation, readout; \
+     docs/method.md section 7) are not included in these answers; a certificate adds them";
 
 fn show(x: f64) -> String {
     if x.is_infinite() {
@@ -536,6 +543,9 @@ fn render_text(
             None => "no shot term".into(),
         }
     ));
+    if prob.record.device != Default::default() {
+        s.push_str(&format!("{DEVICE_NOTE}\n\n"));
+    }
     s.push_str(&format!(
         "  {:<28} {:>14} {:>14} {:>12}\n",
         "question", "stochastic", "worst case", "gain"
