@@ -370,10 +370,13 @@ fn certify_with(record: &Value) -> (Option<i32>, String, bool, Option<Value>) {
     )
 }
 
+/// A change to a record.
+type Edit = Box<dyn FnOnce(&mut Value)>;
+
 /// Bad device sections: exit 1, the file and the JSON pointer named, nothing written.
 #[test]
 fn bad_device_sections_are_refused_with_their_pointer() {
-    let cases: Vec<(Box<dyn FnOnce(&mut Value)>, &str, &str)> = vec![
+    let cases: Vec<(Edit, &str, &str)> = vec![
         (
             Box::new(|v| v["incoherent"][1]["rate"] = serde_json::json!(-1.0)),
             "/incoherent/1/rate",
@@ -482,5 +485,5 @@ fn a_version_2_record_adds_the_device_terms_and_nothing_else_changes_without_the
         b["inputs"]["noise_record"] = Value::Null;
     }
     assert_eq!(b1, b2);
-    assert!(b1.get("format_minor").map_or(true, |m| m != 3));
+    assert!(b1.get("format_minor").is_none_or(|m| m != 3));
 }
