@@ -487,3 +487,90 @@ fn a_version_2_record_adds_the_device_terms_and_nothing_else_changes_without_the
     assert_eq!(b1, b2);
     assert!(b1.get("format_minor").is_none_or(|m| m != 3));
 }
+
+/// The device terms are shown where people read them: the summary table of `certify` (text
+/// and `--json`), `review` (text and `--json`) and the report's error-budget figure, each
+/// with the numbers of the certificate.
+#[test]
+fn the_device_terms_are_shown_in_the_summary_review_and_report() {
+    let dir = crate::util::scratch();
+    let run = dir.path().join("run.h5");
+    std::fs::copy(reference("h5py/run_f32_gzip.h5"), &run).unwrap();
+    let noise = dir.path().join("noise-v2.json");
+    let record = v2_record(|v| v["readout"]["applies_to"] = serde_json::json!(["Z_1"]));
+    std::fs::write(&noise, serde_json::to_string_pretty(&record).unwrap()).unwrap();
+    let cert = dir.path().join("run.cert.json");
+    let out = crate::util::quassay()
+        .arg("certify")
+        .arg(&run)
+        .arg("--noise")
+        .arg(&noise)
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(matches!(out.status.code(), Some(0) | Some(3)), "{text}");
+    for words in ["E_inc", "E_prep", "E_meas", "E_device", "not covered"] {
+        assert!(text.contains(words), "summary lacks {words}: {text}");
+    }
+    let body = crate::util::body(&cert);
+    let json_out = crate::util::quassay()
+        .args(["certify", "--json", "--force", "--noise"])
+        .arg(&noise)
+        .arg(&run)
+        .output()
+        .unwrap();
+    let summary: Value = serde_json::from_slice(&json_out.stdout).unwrap();
+    for (o, s) in body["observables"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .zip(summary["observables"].as_array().unwrap())
+    {
+        if o["name"] == "Z_1" {
+            assert!(s["device"]["e_readout"].as_f64().unwrap() > 0.0);
+        } else {
+            assert_eq!(s["device"]["e_readout"], "not_covered");
+        }
+        let worst = crate::util::numbers(&o["e_device"])
+            .iter()
+            .position(|&d| d == s["device"]["e_device"].as_f64().unwrap());
+        assert!(worst.is_some(), "{} {}", o["name"], s["device"]);
+    }
+    let review = crate::util::quassay()
+        .arg("review")
+        .arg(&cert)
+        .output()
+        .unwrap();
+    let review_text = String::from_utf8_lossy(&review.stdout);
+    assert!(review_text.contains("Device errors"), "{review_text}");
+    assert!(review_text.contains("E_inc"), "{review_text}");
+    let review_json = crate::util::quassay()
+        .args(["review", "--json"])
+        .arg(&cert)
+        .output()
+        .unwrap();
+    let rj: Value = serde_json::from_slice(&review_json.stdout).unwrap();
+    assert_eq!(
+        rj["review"]["device_errors"].as_array().map(Vec::len),
+        body["observables"].as_array().map(Vec::len)
+    );
+    // Full precision in --json: the worst time's e_device as in the certificate.
+    let z1 = &rj["review"]["device_errors"][1];
+    assert_eq!(z1["observable"], "Z_1");
+    assert!(crate::util::numbers(&body["observables"][1]["e_device"])
+        .contains(&z1["e_device"].as_f64().unwrap()));
+    let page = dir.path().join("report.html");
+    let report = crate::util::quassay()
+        .arg("report")
+        .arg(&cert)
+        .arg("-o")
+        .arg(&page)
+        .output()
+        .unwrap();
+    assert_eq!(report.status.code(), Some(0), "{report:?}");
+    let html = std::fs::read_to_string(&page).unwrap();
+    assert!(html.contains("E_inc (incoherent errors)"));
+    assert!(html.contains("E_prep (preparation errors)"));
+    // The readout term is covered for Z_1 only: one curve.
+    assert_eq!(html.matches("E_meas (readout errors)").count(), 1, "{html}");
+}

@@ -343,6 +343,7 @@ fn stream_run(
                     &b.points,
                     None,
                     local_v.as_deref(),
+                    b.device.as_ref().map(|d| d.total.as_slice()),
                 ));
                 observables.push(b);
             }
@@ -384,11 +385,13 @@ fn stream_run(
             expand(&record, &run, &names, run_path, noise_path)?
         }
     };
-    let (Some(bounds), Some(checks)) = (bounds, checks) else {
+    let (Some(bounds), Some(mut checks)) = (bounds, checks) else {
         return Err(Error::Options(
             "the bounds could not be prepared; please report this as a bug in quassay".into(),
         ));
     };
+    checks.declares_preparation_or_readout =
+        model.device.preparation.is_some() || model.device.readout.is_some();
     Ok((Loaded { run, record, model }, bounds, checks, small))
 }
 

@@ -7,6 +7,7 @@
 
 use serde_json::{json, Value};
 
+use crate::numbers::short;
 use crate::Problem;
 
 /// A number of a column entry: a JSON number, or `"unbounded"` (∞).
@@ -428,6 +429,8 @@ pub struct Explanation {
     pub not_covered: Vec<String>,
     /// Which statement (global or light-cone) each observable used.
     pub statements: Vec<String>,
+    /// Format 1.3: the device-error terms of each observable at its worst time.
+    pub device: Vec<DeviceLine>,
     pub gains: Vec<Gain>,
     pub verdict_status: String,
     pub verdict_text: String,
@@ -565,6 +568,9 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
         }
     }
     let checks = &body["checks"];
+    let device = &body["noise"]["device"];
+    let declares_prep_or_readout =
+        device.get("preparation").is_some() || device.get("readout").is_some();
     if checks["status"].as_str() == Some("not_performed") {
         untested.push(format!(
             "The consistency checks were not performed: {}.",
@@ -594,7 +600,12 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
             )),
             Some("checked") if c["t0"]["rejected"] == true => untested.push(format!(
                 "{name}: FLAG at t = 0: the data fail a test where no Hamiltonian error has \
-                 acted, which points to preparation or measurement errors (not covered)."
+                 acted, which points to preparation or measurement errors {}.",
+                if declares_prep_or_readout {
+                    "larger than the noise record declares"
+                } else {
+                    "(not covered)"
+                }
             )),
             _ => {}
         }
@@ -638,10 +649,73 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
         untested,
         not_covered: strings(&body["not_covered"]),
         statements,
+        device: device_lines(body, view),
         gains: gains(view),
         verdict_status: view.verdict_status.clone(),
         verdict_text: view.verdict_text.clone(),
     }
+}
+
+/// The device-error terms of one observable at its worst time: a sentence with short numbers,
+/// and the same in full precision for `--json`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DeviceLine {
+    pub text: String,
+    pub data: Value,
+}
+
+/// Format 1.3: per observable with device terms, each term at the observable's worst time and
+/// what it adds to `E_avg` there.
+fn device_lines(body: &Value, view: &BodyView) -> Vec<DeviceLine> {
+    let mut lines = Vec::new();
+    for (o, rows) in body["observables"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .zip(&view.observables)
+    {
+        let Some(k) = o["e_device"].as_array().and(rows.worst_index()) else {
+            continue;
+        };
+        let at = |key: &str| o[key].as_array().and_then(|a| a.get(k)).and_then(number);
+        let time = view.times.get(k).copied().unwrap_or(f64::NAN);
+        let e_avg = rows.e_avg.get(k).copied().unwrap_or(f64::NAN);
+        let e_device = at("e_device").unwrap_or(f64::NAN);
+        let mut parts = Vec::new();
+        let mut data = json!({
+            "observable": rows.name, "time": num_json(time), "e_device": num_json(e_device),
+            "e_avg": num_json(e_avg),
+        });
+        for (key, name) in [
+            ("e_incoherent", "E_inc"),
+            ("e_preparation", "E_prep"),
+            ("e_readout", "E_meas"),
+        ] {
+            match (&o[key], at(key)) {
+                (_, Some(x)) => {
+                    parts.push(format!("{name} {}", short(x)));
+                    data[key] = num_json(x);
+                }
+                (Value::String(reason), None) => {
+                    parts.push(format!("{name} {reason}"));
+                    data[key] = json!(reason);
+                }
+                _ => {}
+            }
+        }
+        let text = format!(
+            "{}: at t = {} {} (its worst time), {}; together E_device {}, added to E_avg {} with \
+             certainty.",
+            rows.name,
+            short(time),
+            view.time_unit,
+            parts.join(", "),
+            short(e_device),
+            short(e_avg),
+        );
+        lines.push(DeviceLine { text, data });
+    }
+    lines
 }
 
 fn num_json(x: f64) -> Value {
@@ -657,7 +731,7 @@ fn num_json(x: f64) -> Value {
 impl Explanation {
     /// The explanation as data.
     pub fn to_json(&self) -> Value {
-        json!({
+        let mut v = json!({
             "claim": self.claim,
             "assumptions": self.assumptions,
             "not_tested": self.untested,
@@ -668,7 +742,12 @@ impl Explanation {
                 "e_wc": num_json(g.e_wc), "gain": num_json(g.gain),
             })).collect::<Vec<_>>(),
             "verdict": { "status": self.verdict_status, "text": self.verdict_text },
-        })
+        });
+        // Format 1.3 only, so that the output for earlier certificates is unchanged.
+        if !self.device.is_empty() {
+            v["device_errors"] = Value::Array(self.device.iter().map(|d| d.data.clone()).collect());
+        }
+        v
     }
 
     /// The explanation as text for a referee.
@@ -703,6 +782,17 @@ impl Explanation {
             &self.not_covered,
         );
         list(&mut s, "Which bound was used:", &self.statements);
+        if !self.device.is_empty() {
+            list(
+                &mut s,
+                "Device errors (incoherent, preparation, readout; docs/method.md section 7):",
+                &self
+                    .device
+                    .iter()
+                    .map(|d| d.text.clone())
+                    .collect::<Vec<_>>(),
+            );
+        }
         s.push_str(
             "Gain of the stochastic statement over the worst case (at each observable's worst \
              time):\n",
@@ -713,18 +803,14 @@ impl Explanation {
             } else if g.gain.is_nan() {
                 "- (E_avg = 0)".to_string()
             } else {
-                format!("{:.3}x", g.gain)
+                format!("{}x", short(g.gain))
             };
             s.push_str(&format!(
                 "  - {}: at t = {} {time_unit}, worst case {} vs E_avg {}: {gain}\n",
                 g.observable,
-                g.time,
-                if g.e_wc.is_finite() {
-                    format!("{}", g.e_wc)
-                } else {
-                    "unbounded".into()
-                },
-                g.e_avg
+                short(g.time),
+                short(g.e_wc),
+                short(g.e_avg)
             ));
         }
         s.push_str(&format!(

@@ -32,6 +32,9 @@ pub struct HalfWidth {
     redrawn: Redrawn,
     realizations: usize,
     shots: ShotSum,
+    /// The device-error term at this time (docs/method.md §7), added to `E_avg` with the sum
+    /// capped at `s_O`, as the bounds add it; `None` without device sections.
+    device: Option<f64>,
 }
 
 impl HalfWidth {
@@ -57,7 +60,13 @@ impl HalfWidth {
             redrawn,
             realizations,
             shots,
+            device: None,
         }
+    }
+
+    /// The same terms with the device-error term `d` added to `E_avg` (capped at `s_O`).
+    pub fn with_device(self, d: Option<f64>) -> HalfWidth {
+        HalfWidth { device: d, ..self }
     }
 
     /// `E_avg(ε) + E_shot(ε)`, pointwise, with the default split of ε (equal halves, or all
@@ -75,6 +84,10 @@ impl HalfWidth {
             }
         };
         let e_avg = cap(self.s_o, self.e_wc, self.sys_bias + fluct);
+        let e_avg = match self.device {
+            Some(d) => (e_avg + d).min(self.s_o),
+            None => e_avg,
+        };
         e_avg + self.shots.term(self.s_o, self.realizations, alpha)
     }
 

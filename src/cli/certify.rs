@@ -12,6 +12,7 @@ use serde_json::{json, Value};
 use super::args::CertifyArgs;
 use super::{print_stdout, Outcome};
 use crate::bounds::confidence::Simultaneity;
+use crate::bounds::device::ReadoutTerm;
 use crate::certificate::body::CertifyOptions;
 use crate::certificate::certify::{compute_body, Computed};
 use crate::certificate::document::{envelope_now, Certificate};
@@ -260,6 +261,18 @@ struct Row {
     /// time (`None` where the two statements are disjoint), and at how many times the data
     /// statement is the narrower.
     data: Option<(f64, Option<f64>, usize)>,
+    /// With device sections in the record: the device terms at the worst time.
+    device: Option<DeviceRow>,
+}
+
+/// The device-error terms of one observable at its worst time (docs/method.md §7).
+struct DeviceRow {
+    incoherent: Option<f64>,
+    preparation: Option<f64>,
+    readout: ReadoutTerm,
+    total: f64,
+    /// The model statement's half-width at the worst time.
+    half_width: f64,
 }
 
 fn rows(c: &Computed) -> Vec<Row> {
@@ -289,28 +302,21 @@ fn rows(c: &Computed) -> Vec<Row> {
                     let narrower = d.points.iter().filter(|p| p.data_narrower).count();
                     (p.map_or(0.0, |p| p.half_width), certified, narrower)
                 }),
+                device: o.device.as_ref().map(|d| DeviceRow {
+                    incoherent: d.incoherent.as_ref().and_then(|v| v.get(k).copied()),
+                    preparation: d.preparation.as_ref().and_then(|v| v.get(k).copied()),
+                    readout: d.readout,
+                    total: d.total.get(k).copied().unwrap_or(0.0),
+                    half_width: p.map_or(0.0, |p| p.half_width),
+                }),
             }
         })
         .collect()
 }
 
-/// A number for the table: three significant digits, `unbounded` for infinity.
-pub(super) fn show(x: f64) -> String {
-    if x.is_infinite() {
-        "unbounded".into()
-    } else if x.is_nan() {
-        "-".into()
-    } else if x == 0.0 {
-        "0".into()
-    } else if (1e-3..1e4).contains(&x.abs()) {
-        format!("{:.4}", x)
-            .trim_end_matches('0')
-            .trim_end_matches('.')
-            .to_string()
-    } else {
-        format!("{x:.3e}")
-    }
-}
+/// A number for the table: four decimals or three significant digits (see
+/// [`crate::numbers::short`]).
+pub(super) use crate::numbers::short as show;
 
 pub(super) fn last_fidelity(c: &Computed) -> String {
     match c.bounds.fidelity.last() {
@@ -447,6 +453,10 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
              themselves, docs/method.md section 6).\n",
         );
     }
+    if rows(c).iter().any(|r| r.device.is_some()) {
+        s.push('\n');
+        s.push_str(&device_table(c, unit));
+    }
     let status = verdict_status(cert);
     s.push_str(&format!(
         "consistency of the data with the noise record: {status}\n"
@@ -464,6 +474,51 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
     s
 }
 
+/// The device-error table: each term at the observable's worst time, and its share of the
+/// half-width there.
+fn device_table(c: &Computed, unit: &str) -> String {
+    let mut table: Vec<[String; 7]> = vec![[
+        "observable",
+        "worst t",
+        "E_inc",
+        "E_prep",
+        "E_meas",
+        "E_device",
+        "share of +-",
+    ]
+    .map(String::from)];
+    let absent = |x: Option<f64>| x.map_or_else(|| "-".into(), show);
+    for r in rows(c) {
+        let Some(d) = &r.device else { continue };
+        let half_width = d.half_width;
+        table.push([
+            r.name,
+            format!("{} {unit}", show(r.worst_time)),
+            absent(d.incoherent),
+            absent(d.preparation),
+            match d.readout {
+                ReadoutTerm::Absent => "-".into(),
+                ReadoutTerm::NotDeclared => "not covered".into(),
+                ReadoutTerm::Bound(e) => show(e),
+            },
+            show(d.total),
+            if half_width > 0.0 {
+                format!("{:.0}%", 100.0 * (d.total / half_width).min(1.0))
+            } else {
+                "-".into()
+            },
+        ]);
+    }
+    let mut s = aligned(&table, |j| j > 0);
+    s.push_str(
+        "\nE_inc, E_prep, E_meas: incoherent, preparation and readout errors (docs/method.md \
+         section 7), added with certainty to E_avg (capped at the spectrum's width); - where \
+         the record has no such section; not covered: the observable is not in the record's \
+         readout.applies_to.\n",
+    );
+    s
+}
+
 pub(super) fn summary_json(
     output: &Path,
     cert: &Certificate,
@@ -474,7 +529,19 @@ pub(super) fn summary_json(
     let observables: Vec<Value> = rows(c)
         .into_iter()
         .map(|r| {
-            json!({
+            let device = r.device.as_ref().map(|d| {
+                json!({
+                    "e_incoherent": d.incoherent.map_or(Value::Null, num),
+                    "e_preparation": d.preparation.map_or(Value::Null, num),
+                    "e_readout": match d.readout {
+                        ReadoutTerm::Absent => Value::Null,
+                        ReadoutTerm::NotDeclared => json!("not_covered"),
+                        ReadoutTerm::Bound(e) => num(e),
+                    },
+                    "e_device": num(d.total),
+                })
+            });
+            let mut v = json!({
                 "name": r.name,
                 "worst_time": num(r.worst_time),
                 "e_avg": num(r.e_avg),
@@ -484,7 +551,12 @@ pub(super) fn summary_json(
                 "model_half_width": r.data.map_or(Value::Null, |d| num(d.0)),
                 "certified_half_width": r.data.and_then(|d| d.1).map_or(Value::Null, num),
                 "data_narrower_times": r.data.map_or(Value::Null, |d| json!(d.2)),
-            })
+            });
+            // Only with device sections, so that the output for other records is unchanged.
+            if let Some(d) = device {
+                v["device"] = d;
+            }
+            v
         })
         .collect();
     let last = c.bounds.fidelity.last();

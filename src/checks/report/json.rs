@@ -60,7 +60,13 @@ impl ChecksReport {
                 self.n_tests
             );
             let prep = self.preparation_failures();
-            if prep > 0 {
+            if prep > 0 && self.declares_preparation_or_readout {
+                text.push_str(&format!(
+                    " {prep} of the failures are at t = 0, where no Hamiltonian error has acted: \
+                     they point to preparation or readout errors larger than the noise record \
+                     declares."
+                ));
+            } else if prep > 0 {
                 text.push_str(&format!(
                     " {prep} of the failures are at t = 0, where no Hamiltonian error has acted: \
                      they point to preparation or measurement errors, which the bounds do not \

@@ -202,6 +202,9 @@ pub struct ChecksReport {
     /// Number of tests in the decision family.
     pub n_tests: usize,
     pub observables: Vec<ObservableChecks>,
+    /// Whether the noise record declares preparation or readout errors (version 2): the text
+    /// on failures at t = 0 then says that they exceed the declared ones.
+    pub declares_preparation_or_readout: bool,
     failures: Vec<Failure>,
 }
 
@@ -246,7 +249,8 @@ pub fn check_run_with_sensitivities(
         .enumerate()
         .map(|(j, (o, ob))| {
             let sens = sensitivities.and_then(|s| s.get(j)).map(|v| v.as_slice());
-            plan.observable(o, &ob.mean, &ob.points, sens)
+            let device = ob.device.as_ref().map(|d| d.total.as_slice());
+            plan.observable_with_variance(o, &ob.mean, &ob.points, sens, None, device)
         })
         .collect();
     plan.finish(observables)

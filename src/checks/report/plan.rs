@@ -102,7 +102,7 @@ impl<'a> CheckPlan<'a> {
         points_bounds: &[PointBounds],
         sensitivities: Option<&[Vec<f64>]>,
     ) -> ObservableChecks {
-        self.observable_with_variance(o, mean, points_bounds, sensitivities, None)
+        self.observable_with_variance(o, mean, points_bounds, sensitivities, None, None)
     }
 
     /// As [`CheckPlan::observable`], with a second upper bound per time on the Efron–Stein
@@ -110,6 +110,10 @@ impl<'a> CheckPlan<'a> {
     /// light-cone one of `bounds::local`): `V_noise` is the smaller of the two. Both bound the
     /// same variance for every admissible record and are fixed before the data are seen, so
     /// their minimum is a valid bound, and the test stays valid (docs/method.md §5).
+    ///
+    /// `device`, per time, is the observable's device-error term (docs/method.md §7.5): the
+    /// ideal-reference test adds it to `E_avg` as the bounds do, and the variance test allows
+    /// `(√V_noise + E_device)²` for the spread of the realizations' expectations.
     pub fn observable_with_variance(
         &self,
         o: &Observable,
@@ -117,6 +121,7 @@ impl<'a> CheckPlan<'a> {
         points_bounds: &[PointBounds],
         sensitivities: Option<&[Vec<f64>]>,
         other_v_noise: Option<&[f64]>,
+        device: Option<&[f64]>,
     ) -> ObservableChecks {
         let r = self.realizations;
         let s_o = o.spread();
@@ -145,8 +150,9 @@ impl<'a> CheckPlan<'a> {
                         };
                         let other = other_v_noise.and_then(|v| v.get(k)).copied();
                         let (redrawn, sources) = (self.redrawn, self.sources);
+                        let d = device.and_then(|v| v.get(k)).copied();
                         let mut v =
-                            variance_test(o, &column, redrawn, sources, sens, other, self.gamma);
+                            variance_test(o, &column, redrawn, sources, sens, other, d, self.gamma);
                         v.std_lower_distribution_free = maurer_pontil::std_lower_bound(
                             v.sample_variance.sqrt(),
                             r,
@@ -168,7 +174,8 @@ impl<'a> CheckPlan<'a> {
                             self.redrawn,
                             r,
                             shots,
-                        );
+                        )
+                        .with_device(device.and_then(|v| v.get(k)).copied());
                         Some(IdealTest {
                             ideal: ideal[k],
                             deviation,
@@ -223,6 +230,7 @@ impl<'a> CheckPlan<'a> {
             not_performed: self.not_performed,
             n_tests: self.n_tests,
             observables,
+            declares_preparation_or_readout: false,
             failures,
         }
     }

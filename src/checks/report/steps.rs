@@ -29,6 +29,7 @@ pub(super) fn variance_test(
     sources: &[SourceData],
     sens: &[f64],
     other_v_noise: Option<f64>,
+    device: Option<f64>,
     gamma: f64,
 ) -> VarianceTest {
     let r = c.rows;
@@ -37,6 +38,17 @@ pub(super) fn variance_test(
     // `noise_variance` is 0 unless the noise is redrawn every realization, and stays 0.
     let v_noise = noise_variance(redrawn, sources, sens);
     let v_noise = other_v_noise.map_or(v_noise, |x| v_noise.min(x));
+    // Device errors (docs/method.md §7.5): each realization's expectation moves by at most
+    // E_device from the closed evolution's, so its standard deviation grows by at most
+    // E_device (Minkowski), whatever the noise redrawing and even if the device errors differ
+    // between realizations within the record's bounds.
+    let v_noise = match device {
+        Some(d) => {
+            let s = v_noise.sqrt() + d;
+            s * s
+        }
+        None => v_noise,
+    };
     let (v_shot, interval, approximate, gamma_used) = if c.shots.approximate() {
         (c.shots.variance(0.0, r), [mean, mean], true, 0.0)
     } else {

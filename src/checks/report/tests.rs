@@ -336,3 +336,52 @@ fn an_unusable_level_is_reported_not_silently_passed() {
     assert_eq!(rep.verdict_json()["status"], "not_tested");
     assert_eq!(rep.to_json()["status"], "not_performed");
 }
+
+/// Device errors in the checks (docs/method.md §7.5), on exact simulations of the Ramsey spin:
+/// each realization prepares the spin tilted from |+⟩ towards |0⟩ by a Bloch angle θ_r with
+/// sin(θ_r/2) ≤ 0.1 (trace distance at most 0.1) and reads it with a flip probability p_r ≤ 0.03
+/// of its own, so ⟨X⟩ = (1 − 2p_r) cos θ_r cos(2δgt) in closed form. Under the record that
+/// declares these errors the checks pass; without them the offset at t = 0 (about 0.04) is
+/// flagged there as a preparation problem.
+#[test]
+fn declared_device_errors_are_allowed_by_the_checks() {
+    use crate::model::device::{AppliesTo, DeviceModel};
+    let (r, shots, delta) = (100usize, 1000u64, 0.05);
+    let mut rng = rand_chacha::ChaCha20Rng::seed_from_u64(17);
+    let mut x = Array2::zeros((r, TIMES.len()));
+    for i in 0..r {
+        let g: f64 = rng.random_range(-1.0..=1.0);
+        let theta = 2.0 * (rng.random_range(0.0..=0.1f64)).asin();
+        let p: f64 = rng.random_range(0.0..=0.03);
+        for (k, &t) in TIMES.iter().enumerate() {
+            let mean = (1.0 - 2.0 * p) * theta.cos() * (2.0 * delta * g * t).cos();
+            let mut sum = 0i64;
+            for _ in 0..shots {
+                sum += if rng.random::<f64>() < 0.5 * (1.0 + mean) {
+                    1
+                } else {
+                    -1
+                };
+            }
+            x[[i, k]] = sum as f64 / shots as f64;
+        }
+    }
+    let run = run(vec![observable(
+        "X",
+        x,
+        shots,
+        Some(vec![1.0; TIMES.len()]),
+    )]);
+    let plain = record(delta, Redrawn::EveryRealization);
+    let rep = check(&run, &plain);
+    assert!(!rep.consistent());
+    assert!(rep.preparation_failures() >= 1, "{:?}", rep.failures());
+    let mut declared = plain.clone();
+    declared.device = DeviceModel {
+        incoherent: None,
+        preparation: Some(vec![0.1]),
+        readout: Some((vec![0.03], AppliesTo::All)),
+    };
+    let rep = check(&run, &declared);
+    assert!(rep.consistent(), "{:?}", rep.failures());
+}

@@ -1,5 +1,6 @@
 //! Figure "budget": the error budget of one observable over time, each term its own curve
-//! (bias, fluctuation, systematic, shot), with the half-width of the certified interval.
+//! (bias, fluctuation, systematic, shot, and the device errors when the certificate has them),
+//! with the half-width of the certified interval.
 
 use plotters::prelude::SeriesLabelPosition;
 
@@ -17,7 +18,7 @@ pub(crate) fn figure(d: &ReportData, o: &ObservableColumns) -> Result<(String, S
         Marker::Circle,
     );
     bias.width = 1;
-    let curves = [
+    let mut curves = vec![
         (&o.e_bias, bias),
         (
             &o.fluctuation,
@@ -38,6 +39,39 @@ pub(crate) fn figure(d: &ReportData, o: &ObservableColumns) -> Result<(String, S
             c
         }),
     ];
+    // Format 1.3: the device-error terms, each drawn when the certificate has it.
+    let device = [
+        (
+            &o.device.incoherent,
+            "E_inc (incoherent errors)",
+            Dash::Short,
+            Marker::Triangle,
+            "E_inc (short dashes, triangles)",
+        ),
+        (
+            &o.device.preparation,
+            "E_prep (preparation errors)",
+            Dash::Long,
+            Marker::Square,
+            "E_prep (long dashes, squares)",
+        ),
+        (
+            &o.device.readout,
+            "E_meas (readout errors)",
+            Dash::Short,
+            Marker::Circle,
+            "E_meas (short dashes, circles)",
+        ),
+    ];
+    let mut device_text = Vec::new();
+    for (column, label, dash, marker, text) in device {
+        if let Some(v) = column {
+            let mut c = Curve::new(label, dash, marker);
+            c.grey = 60;
+            curves.push((v, c));
+            device_text.push(text);
+        }
+    }
     let all = curves.iter().flat_map(|(v, _)| v.iter().copied());
     let top = plot::padded_range(all.chain([0.0]), (0.0, 1.0)).1;
     let y = plot::with_legend_room((0.0, top), curves.len());
@@ -74,8 +108,16 @@ pub(crate) fn figure(d: &ReportData, o: &ObservableColumns) -> Result<(String, S
          triangles), E_sys (short dashes, squares), E_shot (long dashes, crosses), and the \
          half-width E_avg + E_shot of the certified interval (thick grey line, open circles). \
          E_avg = min(s_O, E_wc, E_sys + E_bias + fluctuation), so the half-width can be less \
-         than the sum of the terms.{notes}",
+         than the sum of the terms.{device}{notes}",
         name = escape(&o.name),
+        device = if device_text.is_empty() {
+            String::new()
+        } else {
+            format!(
+                " The device errors, added with certainty to E_avg (grey): {}.",
+                device_text.join(", ")
+            )
+        },
     );
     Ok((svg, caption))
 }

@@ -43,6 +43,17 @@ pub(crate) struct ObservableColumns {
     /// Format 1.1: the data statement's interval and the certified intersection, per time
     /// (NaN where the two statements are disjoint).
     pub data: Option<DataBands>,
+    /// Format 1.3: the device-error terms per time, each when the certificate has it.
+    pub device: DeviceColumns,
+}
+
+/// The device-error terms of one observable (format 1.3): `e_incoherent`, `e_preparation`
+/// and `e_readout`, each `None` when absent (or, for the readout, not covered).
+#[derive(Debug, Clone, Default)]
+pub(crate) struct DeviceColumns {
+    pub incoherent: Option<Vec<f64>>,
+    pub preparation: Option<Vec<f64>>,
+    pub readout: Option<Vec<f64>>,
 }
 
 /// The data statement's bands of one observable (format 1.1).
@@ -275,6 +286,11 @@ pub(crate) fn read_body(body: &Value, file: &Path) -> Result<ReportData> {
             e_shot: r.column(&format!("{p}/e_shot")),
             claim,
             data: data_bands(body, &p, times.len()),
+            device: DeviceColumns {
+                incoherent: optional_column(body, &format!("{p}/e_incoherent"), times.len()),
+                preparation: optional_column(body, &format!("{p}/e_preparation"), times.len()),
+                readout: optional_column(body, &format!("{p}/e_readout"), times.len()),
+            },
             name: name.clone(),
         });
         // The checks of this observable, found by name (the order is the same, but a name

@@ -186,6 +186,7 @@ mod tests {
             e_shot: vec![0.25, 0.1],
             claim: String::new(),
             data: None,
+            device: Default::default(),
         };
         let (low, high) = worst_case_band(&o);
         assert_eq!(low, [0.0, -1.0]);
