@@ -251,3 +251,81 @@ fn a_record_with_bond_sources_plans_a_square_lattice() {
     assert!(size.is_object() || size.is_array(), "{size}");
     assert_ne!(size["status"], "not_available", "{size}");
 }
+
+/// Device errors (docs/method.md §7) in the answers. With no Hamiltonian noise (amplitude 0)
+/// and no shot term, the error is `E_dev(t) = s_O (t ΣΓ + Σε + 1 − Π(1 − p))`, linear in t and
+/// in ΣΓ, so (b) and (e) have closed forms, computed here by hand from the record's numbers:
+/// 10 sites, dephasing 0.01/us each (constant 1), trace distance 0.001, flips max(0.002, 0.001).
+/// A site listed explicitly fixes the system, so (c) is then not available.
+#[test]
+fn device_errors_enter_every_answer_and_the_largest_rate_is_the_closed_form() {
+    let dir = scratch();
+    let record = |listed: bool| {
+        let text =
+            std::fs::read_to_string(repo().join("tests/reference/noise/valid/chain-detuning.json"))
+                .unwrap();
+        let mut v: Value = serde_json::from_str(&text).unwrap();
+        v["format_version"] = serde_json::json!(2);
+        v["sources"][0]["amplitude"] = serde_json::json!(0.0);
+        v["incoherent"] = serde_json::json!([{"name": "dephasing", "acts_on": "each_site",
+            "jump": "dephasing", "rate": 0.01, "rate_uncertainty": 0.0, "rate_unit": "1/us"}]);
+        v["preparation"] = serde_json::json!([{"acts_on": "each_site",
+            "trace_distance": 0.001, "trace_distance_uncertainty": 0.0}]);
+        v["readout"] = serde_json::json!({"applies_to": "all", "errors": [{"acts_on":
+            if listed { serde_json::json!({"sites": [0, 1]}) } else { serde_json::json!("each_site") },
+            "flip_0_to_1": 0.002, "flip_1_to_0": 0.001, "flip_uncertainty": 0.0}]});
+        let path = dir.path().join(format!("noise-{listed}.json"));
+        std::fs::write(&path, serde_json::to_string(&v).unwrap()).unwrap();
+        path
+    };
+    let (target, t, s_o) = (0.3, 2.0, 2.0);
+    let args = [
+        "--lattice",
+        "chain:10",
+        "--target",
+        "0.3",
+        "--time",
+        "2",
+        "--sizes",
+        "10,20",
+    ];
+    let v = budget_with(record(false).to_str().unwrap(), &args);
+    let e_prep = s_o * 10.0 * 0.001;
+    let e_meas = s_o * (1.0 - 0.998f64.powi(10));
+    let dev = &v["device_errors"];
+    let close = |a: &Value, b: f64| {
+        let a = a.as_f64().unwrap();
+        assert!((a / b - 1.0).abs() < 1e-9, "{a} vs {b}");
+    };
+    close(&dev["e_preparation"], e_prep);
+    close(&dev["e_readout"], e_meas);
+    close(&dev["e_incoherent"], s_o * t * 10.0 * 0.01);
+    let room = target - e_prep - e_meas;
+    // (e): the largest ΣΓ; (b): the longest time at the recorded ΣΓ = 0.1.
+    for w in ["averaged", "single"] {
+        close(
+            &dev["largest_rate_sum"][w]["stochastic"]["value"],
+            room / (s_o * t),
+        );
+        close(
+            &dev["largest_rate_sum"][w]["worst_case"]["value"],
+            room / (s_o * t),
+        );
+        close(
+            &v["time_limit"][w]["stochastic"]["value"],
+            room / (s_o * 0.1),
+        );
+        // (a): no scale on the (zero) amplitudes helps: E_inc alone exceeds the target at T.
+        assert_eq!(v["scale"][w]["stochastic"]["status"], "infeasible");
+    }
+    // (c) counts the device errors of every size: with ΣΓ = 0.01 n the error at T reaches the
+    // target near n = room'/(s_O t 0.01), room' shrinking as n grows; the answer is an edge.
+    let n = v["size"]["averaged"]["stochastic"]["value"]
+        .as_f64()
+        .unwrap() as i32;
+    let e = |n: i32| s_o * (t * 0.01 * n as f64 + 0.001 * n as f64 + 1.0 - 0.998f64.powi(n));
+    assert!(e(n) <= target && e(n + 1) > target, "n = {n}");
+    let v = budget_with(record(true).to_str().unwrap(), &args);
+    assert_eq!(v["size"]["status"], "not_available");
+    assert!(v["size"]["reason"].as_str().unwrap().contains("readout"));
+}

@@ -228,6 +228,64 @@ pub fn readout_bound(s_o: f64, p: &[f64], support: &[usize], terms: Option<&Term
     whole.min(by_term * margin(t.supports.len()))
 }
 
+/// The global forms of the device terms, for planning (`budget`): `Σ_i Γ_i`, `Σ_i ε_i` and
+/// `1 − Π_i(1 − p_i)` over every site, each rounded up as [`DeviceData`] rounds them, so that
+/// [`GlobalDevice::term`] of a global observable is the certificate's global device term.
+/// All zero without device sections.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct GlobalDevice {
+    /// `Σ_i Γ_i`, per the run's time unit.
+    pub rate_sum: f64,
+    /// `Σ_i ε_i`.
+    pub preparation_sum: f64,
+    /// `1 − Π_i (1 − p_i)` over every site (the readout term of an observable read on all of
+    /// them, per unit of spread).
+    pub readout_any: f64,
+    /// Number of sites.
+    pub sites: usize,
+}
+
+impl GlobalDevice {
+    /// The sums of a device model (every site).
+    pub fn new(model: &DeviceModel) -> GlobalDevice {
+        let sum = |v: &Vec<f64>| v.iter().sum::<f64>() * margin(v.len());
+        let sites = [
+            model.incoherent.as_ref().map(Vec::len),
+            model.preparation.as_ref().map(Vec::len),
+            model.readout.as_ref().map(|(p, _)| p.len()),
+        ]
+        .into_iter()
+        .flatten()
+        .max()
+        .unwrap_or(0);
+        GlobalDevice {
+            rate_sum: model.incoherent.as_ref().map_or(0.0, sum),
+            preparation_sum: model.preparation.as_ref().map_or(0.0, sum),
+            readout_any: model
+                .readout
+                .as_ref()
+                .map_or(0.0, |(p, _)| any_flip(p, 0..p.len())),
+            sites,
+        }
+    }
+
+    /// Whether every term is zero (no device sections, or all their values 0).
+    pub fn is_zero(&self) -> bool {
+        self.rate_sum == 0.0 && self.preparation_sum == 0.0 && self.readout_any == 0.0
+    }
+
+    /// `E_inc + E_prep + E_meas` at time `t` for spread `s_o`, global forms, in the order the
+    /// certificate adds them.
+    pub fn term(&self, s_o: f64, t: f64) -> f64 {
+        s_o * (t * self.rate_sum) + s_o * self.preparation_sum + s_o * self.readout_any
+    }
+
+    /// The same sums with `Σ Γ_i` replaced by `rate_sum`.
+    pub fn with_rate_sum(self, rate_sum: f64) -> GlobalDevice {
+        GlobalDevice { rate_sum, ..self }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -284,6 +342,31 @@ mod tests {
         let by_term = readout_bound(2.0, &p, &[0, 1, 2], Some(&terms));
         assert!(by_term < whole);
         assert!((by_term - 2.0 / 3.0 * 0.06).abs() < 1e-15);
+    }
+
+    /// The global device term is the certificate's global form of each term: for a global
+    /// observable of spread 2 on three sites, E_inc = 2·t·ΣΓ, E_prep = 2·Σε and
+    /// E_meas = 2·(1 − Π(1 − p)), checked against [`DeviceData::observable`] without a cone.
+    #[test]
+    fn the_global_device_term_equals_the_certificates_global_form() {
+        let model = DeviceModel {
+            incoherent: Some(vec![0.01, 0.02, 0.03]),
+            preparation: Some(vec![0.001, 0.002, 0.0]),
+            readout: Some((vec![0.01, 0.0, 0.02], AppliesTo::All)),
+        };
+        let g = GlobalDevice::new(&model);
+        let data = DeviceData::new(&model, &[1, 2, 1]);
+        let times = [0.0, 0.5, 2.0];
+        let d = data.observable("O", 2.0, &[], None, &times, None);
+        for (k, &t) in times.iter().enumerate() {
+            assert_eq!(g.term(2.0, t), d.total[k], "t = {t}");
+        }
+        assert!(
+            (g.term(2.0, 2.0) - (2.0 * 2.0 * 0.06 + 2.0 * 0.003 + 2.0 * (1.0 - 0.99 * 0.98))).abs()
+                < 1e-14
+        );
+        assert!(GlobalDevice::default().is_zero() && !g.is_zero());
+        assert_eq!(g.sites, 3);
     }
 
     #[test]

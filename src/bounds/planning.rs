@@ -14,8 +14,13 @@
 //! * [`Which::Single`]: `E_1`, one noisy evolution.
 //!
 //! The worst-case counterparts replace the error by `min(s_O, E_wc) (+ E_shot)`: no
-//! cancellation between sources. Pure functions, no I/O.
+//! cancellation between sources. With device errors (docs/method.md §7) their global term
+//! `E_dev(t)` is added to `E_avg`, `E_1` and the worst case, each sum capped at `s_O`, as
+//! `certify` adds it; [`largest_rate_sum`] answers the largest total incoherent rate. Every
+//! error stays non-decreasing in the amplitudes, the time, the system and the rate. Pure
+//! functions, no I/O.
 
+use super::device::GlobalDevice;
 use super::global::{self, PointInputs, ShotData, SourceData};
 use crate::model::noise::Redrawn;
 
@@ -60,6 +65,19 @@ pub struct PointSetting {
     pub alpha: f64,
     /// Failure probability of `E_1`.
     pub p_single: f64,
+    /// The device errors' global sums (all zero without device sections).
+    pub device: GlobalDevice,
+}
+
+impl PointSetting {
+    /// `e + E_dev(t)` capped at `s_O`; `e` itself without device errors (bit for bit).
+    fn with_device(&self, e: f64, t: f64) -> f64 {
+        if self.device.is_zero() {
+            e
+        } else {
+            (e + self.device.term(self.s_o, t)).min(self.s_o)
+        }
+    }
 }
 
 /// The sources with every `δ_i` multiplied by `scale`.
@@ -107,8 +125,9 @@ pub fn point(set: &PointSetting, sources: &[SourceData], t: f64) -> global::Poin
 pub fn error(set: &PointSetting, sources: &[SourceData], t: f64, which: Which) -> f64 {
     let b = point(set, sources, t);
     match which {
-        Which::Averaged => b.half_width,
-        Which::Single => b.e_one,
+        Which::Averaged if set.device.is_zero() => b.half_width,
+        Which::Averaged => set.with_device(b.e_avg, t) + b.e_shot,
+        Which::Single => set.with_device(b.e_one, t),
     }
 }
 
@@ -116,7 +135,7 @@ pub fn error(set: &PointSetting, sources: &[SourceData], t: f64, which: Which) -
 /// trace.
 pub fn worst_error(set: &PointSetting, sources: &[SourceData], t: f64, which: Which) -> f64 {
     let sens = global::global_sensitivities(sources.len(), set.s_o, t);
-    let wc = set.s_o.min(global::worst_case(sources, &sens));
+    let wc = set.with_device(set.s_o.min(global::worst_case(sources, &sens)), t);
     match which {
         Which::Averaged => wc + shot_term(set),
         Which::Single => wc,
@@ -262,6 +281,32 @@ pub fn longest_time_worst(
     largest_real(|t| worst_error(set, sources, t, which), target, t_start)
 }
 
+/// The largest total incoherent rate `Σ_i Γ_i` (per the time unit) with `error ≤ target` at
+/// time `t`, the other errors as recorded (`worst`: the worst-case error). The error grows
+/// linearly with the rate, so `Found` means the recorded rate sum may be replaced by any sum up
+/// to the value.
+pub fn largest_rate_sum(
+    set: &PointSetting,
+    sources: &[SourceData],
+    t: f64,
+    target: f64,
+    which: Which,
+    worst: bool,
+) -> Answer {
+    let f = |rate: f64| {
+        let s = PointSetting {
+            device: set.device.with_rate_sum(rate),
+            ..*set
+        };
+        if worst {
+            worst_error(&s, sources, t, which)
+        } else {
+            error(&s, sources, t, which)
+        }
+    };
+    largest_real(f, target, 1.0 / t.max(f64::MIN_POSITIVE))
+}
+
 /// The ratio of a stochastic answer to the worst-case one (∞ when the worst case allows
 /// nothing, `None` when either is not a number).
 pub fn gain(stochastic: Answer, worst: Answer) -> Option<f64> {
@@ -317,6 +362,7 @@ mod tests {
             p: 0.025,
             alpha: 0.025,
             p_single: 0.05,
+            device: GlobalDevice::default(),
         }
     }
 

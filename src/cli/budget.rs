@@ -8,6 +8,8 @@
 //! between sources) and their ratio, the gain. Both errors are answered: the averaged trace
 //! (`E_avg + E_shot`, the half-width `certify` states) and one noisy evolution (`E_1`).
 //! The bounds are the global ones (docs/method.md §3); the search is in [`crate::bounds::planning`].
+//! A record with device sections (version 2) has their global terms (docs/method.md §7) in every
+//! answer, and with an `incoherent` section budget also answers (e) the largest incoherent rate.
 
 use std::path::PathBuf;
 
@@ -15,9 +17,12 @@ use serde_json::{json, Value};
 
 use super::{print_stdout, Outcome};
 use crate::bounds::confidence::{has_fluctuation_term, split, Simultaneity};
+use crate::bounds::device::GlobalDevice;
 use crate::bounds::global::SourceData;
 use crate::bounds::planning::{self, Answer, PointSetting, Which};
 use crate::inputs::noise_record::read_noise_record;
+use crate::model::device::SiteSet;
+use crate::numbers::short;
 use crate::model::lattice::{Boundary, Geometry, Lattice};
 use crate::model::noise::{ActsOn, Amplitude, NoiseRecord};
 use crate::model::units::TimeUnit;
@@ -168,8 +173,8 @@ struct Problem {
 }
 
 impl Problem {
-    /// The expanded sources on a lattice of the given shape.
-    fn sources(&self, shape: &[usize]) -> crate::Result<Vec<SourceData>> {
+    /// The expanded sources and the device errors' global sums on a lattice of that shape.
+    fn expanded(&self, shape: &[usize]) -> crate::Result<(Vec<SourceData>, GlobalDevice)> {
         let lattice = Lattice::regular(self.geometry, shape, self.boundary)
             .map_err(|e| Error::Options(format!("--lattice: {e}")))?;
         let model = self
@@ -180,15 +185,45 @@ impl Problem {
                 file: self.noise_path.clone(),
                 problems,
             })?;
-        Ok(model
+        let sources = model
             .instances
             .iter()
             .map(SourceData::from_instance)
-            .collect())
+            .collect();
+        Ok((sources, GlobalDevice::new(&model.device)))
     }
 
     /// Why the record cannot be laid on other system sizes, if it cannot.
     fn not_resizable(&self) -> Option<String> {
+        fn listed<'a>(mut sets: impl Iterator<Item = &'a SiteSet>) -> bool {
+            sets.any(|s| matches!(s, SiteSet::Sites(_)))
+        }
+        let d = &self.record.device;
+        let device = [
+            (
+                "incoherent",
+                listed(d.incoherent.iter().flatten().map(|c| &c.acts_on)),
+            ),
+            (
+                "preparation",
+                listed(d.preparation.iter().flatten().map(|p| &p.acts_on)),
+            ),
+            (
+                "readout",
+                listed(
+                    d.readout
+                        .iter()
+                        .flat_map(|r| &r.entries)
+                        .map(|e| &e.acts_on),
+                ),
+            ),
+        ];
+        if let Some((what, _)) = device.iter().find(|(_, l)| *l) {
+            return Some(format!(
+                "an entry of the record's {what} section lists its sites explicitly, which fixes \
+                 the system"
+            ));
+        }
         self.record.sources.iter().enumerate().find_map(|(i, s)| {
             if matches!(s.acts_on, ActsOn::Sites(_)) {
                 Some(format!(
@@ -288,15 +323,7 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
         Simultaneity::Simultaneous,
     )
     .map_err(|e| Error::Options(format!("--confidence: {e:?}")))?;
-    let set = PointSetting {
-        s_o,
-        redrawn: record.redrawn,
-        realizations: args.realizations,
-        shots: args.shots,
-        p: cs.p_point,
-        alpha: cs.alpha_point,
-        p_single: cs.p_single_point,
-    };
+    let redrawn = record.redrawn;
     let prob = Problem {
         noise_path: args.noise.clone(),
         geometry: args.lattice.0,
@@ -305,7 +332,17 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
         record,
     };
     let shape = args.lattice.1.clone();
-    let sources = prob.sources(&shape)?;
+    let (sources, device) = prob.expanded(&shape)?;
+    let set = PointSetting {
+        device,
+        s_o,
+        redrawn,
+        realizations: args.realizations,
+        shots: args.shots,
+        p: cs.p_point,
+        alpha: cs.alpha_point,
+        p_single: cs.p_single_point,
+    };
     let (t, target) = (args.time, args.target);
     let whiches = [Which::Averaged, Which::Single];
 
@@ -325,6 +362,17 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
         })
         .collect();
 
+    // (e) the largest total incoherent rate, with an incoherent section.
+    let rates: Option<Vec<Pair>> = prob.record.device.incoherent.as_ref().map(|_| {
+        whiches
+            .iter()
+            .map(|&w| Pair {
+                stochastic: planning::largest_rate_sum(&set, &sources, t, target, w, false),
+                worst: planning::largest_rate_sum(&set, &sources, t, target, w, true),
+            })
+            .collect()
+    });
+
     // (c) the largest system, (d) the table; both need the record on other sizes.
     let resize = prob.not_resizable();
     let mut size: Option<Vec<Pair>> = None;
@@ -337,9 +385,13 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
             let failure = std::cell::RefCell::new(None::<String>);
             let f = |worst: bool| {
                 planning::largest_integer(
-                    |l| match prob.sources(&prob.shape(l)) {
-                        Ok(src) if worst => planning::worst_error(&set, &src, t, w),
-                        Ok(src) => planning::error(&set, &src, t, w),
+                    |l| match prob.expanded(&prob.shape(l)) {
+                        Ok((src, device)) if worst => {
+                            planning::worst_error(&PointSetting { device, ..set }, &src, t, w)
+                        }
+                        Ok((src, device)) => {
+                            planning::error(&PointSetting { device, ..set }, &src, t, w)
+                        }
                         Err(e) => {
                             failure.borrow_mut().get_or_insert(e.to_string());
                             f64::INFINITY
@@ -370,7 +422,8 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
                     prob.boundary.as_str()
                 )));
             }
-            let src = prob.sources(&prob.shape(l))?;
+            let (src, device) = prob.expanded(&prob.shape(l))?;
+            let set = PointSetting { device, ..set };
             let pairs: Vec<Pair> = whiches
                 .iter()
                 .map(|&w| Pair {
@@ -441,7 +494,7 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
             "gain_exponent": slopes.iter().map(|(w, s)| (w.to_string(), json!(s))).collect::<serde_json::Map<_, _>>(),
         });
         if prob.record.device != Default::default() {
-            j["device_errors"] = json!(DEVICE_NOTE);
+            j["device_errors"] = device_json(&set, t, unit, rates.as_deref());
         }
         let mut s = serde_json::to_string_pretty(&j).unwrap_or_default();
         s.push('\n');
@@ -458,15 +511,69 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
             &resize,
             &table_rows,
             &slopes,
+            &set,
+            rates.as_deref(),
         )
     };
     print_stdout(&text)?;
     Ok(Outcome::Success)
 }
 
-/// Said when the record has device sections, which the answers do not include yet.
-const DEVICE_NOTE: &str = "note: the record's device errors (incoherent, preparation, readout; \
-     docs/method.md section 7) are not included in these answers; a certificate adds them";
+/// Said when the record has device sections: how they enter the answers.
+const DEVICE_NOTE: &str = "the record's device errors (docs/method.md section 7) are in every \
+     answer, in their global forms (every site; the readout term as for an observable read on \
+     all sites), added with certainty to E_avg, E_1 and the worst case, each sum capped at the \
+     spread";
+
+/// The device terms at time `t` and (e), for `--json`.
+fn device_json(set: &PointSetting, t: f64, unit: &str, rates: Option<&[Pair]>) -> Value {
+    let d = &set.device;
+    let mut v = json!({
+        "included": DEVICE_NOTE,
+        "e_incoherent": finite(set.s_o * (t * d.rate_sum)),
+        "e_preparation": finite(set.s_o * d.preparation_sum),
+        "e_readout": finite(set.s_o * d.readout_any),
+        "e_device": finite(d.term(set.s_o, t)),
+        "sites": d.sites,
+        "rate_unit": format!("1/{unit}"),
+        "recorded_rate_sum": finite(d.rate_sum),
+    });
+    if let Some(r) = rates {
+        v["largest_rate_sum"] = json!({ "averaged": pair_json(&r[0]), "single": pair_json(&r[1]) });
+    }
+    v
+}
+
+/// The text of (e): the largest total incoherent rate, per site, and what it means for T1 and
+/// T2 (docs/method.md §7.1: pure relaxation has `Γ = 1/T1`, pure dephasing `Γ = 1/(2 T2)`).
+fn rate_rows(s: &mut String, set: &PointSetting, rates: &[Pair], unit: &str) {
+    let d = &set.device;
+    s.push_str(&format!(
+        "(e) largest total incoherent rate sum_i Gamma_i (1/{unit}; recorded {})\n",
+        show(d.rate_sum)
+    ));
+    row(s, "averaged (E_avg + E_shot)", &rates[0], false, "");
+    row(s, "single evolution (E_1)", &rates[1], false, "");
+    if let Answer::Found { value, .. } = rates[0].stochastic {
+        let n = d.sites.max(1) as f64;
+        let per_site = value / n;
+        s.push_str(&format!(
+            "  averaged, spread evenly over the {} sites: Gamma = {} per site (1/{unit}), that \
+             is T1 >= {} {unit} for pure relaxation or T2 >= {} {unit} for pure dephasing",
+            d.sites,
+            short(per_site),
+            short(1.0 / per_site),
+            short(0.5 / per_site),
+        ));
+        if d.rate_sum > 0.0 {
+            s.push_str(&format!(
+                "; {}x the recorded rates",
+                short(value / d.rate_sum)
+            ));
+        }
+        s.push('\n');
+    }
+}
 
 fn show(x: f64) -> String {
     if x.is_infinite() {
@@ -517,6 +624,8 @@ fn render_text(
     resize: &Option<String>,
     table: &[(usize, usize, Vec<Pair>)],
     slopes: &[(&str, Option<f64>)],
+    set: &PointSetting,
+    rates: Option<&[Pair]>,
 ) -> String {
     let unit = args.time_unit.as_str();
     let shape: Vec<String> = args.lattice.1.iter().map(|n| n.to_string()).collect();
@@ -544,7 +653,15 @@ fn render_text(
         }
     ));
     if prob.record.device != Default::default() {
-        s.push_str(&format!("{DEVICE_NOTE}\n\n"));
+        let d = &set.device;
+        s.push_str(&format!(
+            "device errors at t = {} {unit}: E_inc {}, E_prep {}, E_meas {} (E_device {}); {DEVICE_NOTE}\n\n",
+            show(args.time),
+            show(set.s_o * (args.time * d.rate_sum)),
+            show(set.s_o * d.preparation_sum),
+            show(set.s_o * d.readout_any),
+            show(d.term(set.s_o, args.time)),
+        ));
     }
     s.push_str(&format!(
         "  {:<28} {:>14} {:>14} {:>12}\n",
@@ -604,10 +721,14 @@ fn render_text(
             }
         }
     }
+    if let Some(r) = rates {
+        rate_rows(&mut s, set, r, unit);
+    }
     s.push_str(
         "\nstochastic: the global bounds of docs/method.md §3 (cancellation between independent \
          sources); worst case: no cancellation; gain: stochastic / worst case. \"none\": the \
-         target is below the shot term; \"unlimited\": the target is at least the spread of the \
+         target is below the error left without Hamiltonian noise (the shot term, and the \
+         device errors); \"unlimited\": the target is at least the spread of the \
          observable (or the search limit was reached).\n",
     );
     s.push_str(
