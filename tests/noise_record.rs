@@ -148,6 +148,52 @@ const INVALID: &[(&str, &str, &str)] = &[
         "must be a string",
     ),
     (
+        "device-empty-applies-to.json",
+        "/readout/applies_to",
+        "is empty",
+    ),
+    (
+        "device-in-version-1.json",
+        "/incoherent",
+        "set `format_version` to 2",
+    ),
+    (
+        "device-missing-rate-unit.json",
+        "/incoherent/1",
+        "`rate_unit` is missing",
+    ),
+    (
+        "device-missing-time-unit.json",
+        "/incoherent/0",
+        "`time_unit` is missing",
+    ),
+    ("device-mixed-forms.json", "/incoherent/1", "mixes a jump"),
+    (
+        "device-negative-rate.json",
+        "/incoherent/1/rate",
+        "must be ≥ 0, got -1",
+    ),
+    (
+        "device-probability-above-one.json",
+        "/readout/errors/0/flip_1_to_0",
+        "lies in [0, 1]",
+    ),
+    (
+        "device-trace-distance-above-one.json",
+        "/preparation/0/trace_distance",
+        "lies in [0, 1]",
+    ),
+    (
+        "device-unknown-jump.json",
+        "/incoherent/1/jump",
+        "unknown value `amplitude_damping`",
+    ),
+    (
+        "device-unknown-key.json",
+        "/preparation/0/trace_distance_uncertainy",
+        "did you mean `trace_distance_uncertainty`?",
+    ),
+    (
         "distribution-unknown-key.json",
         "/sources/0/distribution/sgima",
         "did you mean `sigma`?",
@@ -264,6 +310,21 @@ const PARSER_ONLY: &[(&str, &str, &str)] = &[
         "lower = upper = 0",
     ),
     ("deep-nesting.json", "/", "nested more than 128 levels"),
+    (
+        "device-repeated-channel-name.json",
+        "/incoherent/2/name",
+        "repeats the name `T1 and T2`",
+    ),
+    (
+        "device-t1-uncertainty-not-below-t1.json",
+        "/incoherent/0/t1_uncertainty",
+        "not below T1",
+    ),
+    (
+        "device-t2-above-2t1.json",
+        "/incoherent/0/t2",
+        "more than 2·T1",
+    ),
     (
         "duplicate-key-in-distribution.json",
         "/sources/0/distribution/family",

@@ -1,4 +1,6 @@
-//! Writer for noise records (JSON, format `quassay-noise` v1), deterministic and pretty-printed.
+//! Writer for noise records (JSON, format `quassay-noise` v1 and v2), deterministic and
+//! pretty-printed. A record is written in its own `format_version`; the device sections of
+//! version 2 come after the sources, one entry per line.
 //!
 //! The simulator writes the record that goes with a synthetic run, and a user may want a
 //! record rewritten in its canonical layout. The text is laid out by hand so that the keys come
@@ -11,7 +13,8 @@
 
 use serde_json::Value;
 
-use crate::inputs::noise_record::{FORMAT, FORMAT_VERSION};
+use crate::inputs::noise_record::FORMAT;
+use crate::model::device::{AppliesTo, Channel, ChannelSpec, DeviceRecord, SiteSet};
 use crate::model::noise::{ActsOn, Amplitude, Calibration, Family, NoiseRecord, NoiseSource};
 
 /// The record as pretty-printed JSON text with a trailing newline.
@@ -27,7 +30,7 @@ pub fn to_json_string(record: &NoiseRecord) -> String {
         &mut out,
         1,
         "format_version",
-        &FORMAT_VERSION.to_string(),
+        &record.format_version.to_string(),
         true,
     );
     line(
@@ -53,10 +56,12 @@ pub fn to_json_string(record: &NoiseRecord) -> String {
             "\n"
         });
     }
+    out.push_str("  ]");
+    device(&mut out, &record.device);
     match &record.calibration {
-        None => out.push_str("  ]\n"),
+        None => out.push('\n'),
         Some(c) => {
-            out.push_str("  ],\n");
+            out.push_str(",\n");
             line(&mut out, 1, "calibration", &calibration(c), false);
         }
     }
@@ -99,6 +104,111 @@ fn source(out: &mut String, s: &NoiseSource) {
         false,
     );
     out.push_str("    }");
+}
+
+/// The device sections present, each after a comma (the previous member has no trailing
+/// comma or newline yet).
+fn device(out: &mut String, d: &DeviceRecord) {
+    let block = |out: &mut String, key: &str, items: Vec<String>| {
+        out.push_str(&format!(",\n  {}: [\n", string(key)));
+        let n = items.len();
+        for (i, item) in items.into_iter().enumerate() {
+            out.push_str("    ");
+            out.push_str(&item);
+            out.push_str(if i + 1 < n { ",\n" } else { "\n" });
+        }
+        out.push_str("  ]");
+    };
+    if let Some(channels) = &d.incoherent {
+        block(out, "incoherent", channels.iter().map(channel).collect());
+    }
+    if let Some(entries) = &d.preparation {
+        let items = entries
+            .iter()
+            .map(|p| {
+                object(&[
+                    ("acts_on", site_set(&p.acts_on)),
+                    ("trace_distance", number(p.trace_distance)),
+                    ("trace_distance_uncertainty", number(p.uncertainty)),
+                ])
+            })
+            .collect();
+        block(out, "preparation", items);
+    }
+    if let Some(r) = &d.readout {
+        let applies = match &r.applies_to {
+            AppliesTo::All => string("all"),
+            AppliesTo::Names(names) => {
+                let v: Vec<String> = names.iter().map(|n| string(n)).collect();
+                format!("[{}]", v.join(", "))
+            }
+        };
+        out.push_str(",\n  \"readout\": {\n");
+        line(out, 2, "applies_to", &applies, true);
+        out.push_str("    \"errors\": [\n");
+        let n = r.entries.len();
+        for (i, e) in r.entries.iter().enumerate() {
+            out.push_str("      ");
+            out.push_str(&object(&[
+                ("acts_on", site_set(&e.acts_on)),
+                ("flip_0_to_1", number(e.flip_0_to_1)),
+                ("flip_1_to_0", number(e.flip_1_to_0)),
+                ("flip_uncertainty", number(e.uncertainty)),
+            ]));
+            out.push_str(if i + 1 < n { ",\n" } else { "\n" });
+        }
+        out.push_str("    ]\n  }");
+    }
+}
+
+fn channel(c: &Channel) -> String {
+    let mut parts = vec![("name", string(&c.name)), ("acts_on", site_set(&c.acts_on))];
+    match &c.spec {
+        ChannelSpec::Rate {
+            jump,
+            rate,
+            uncertainty,
+            unit,
+        } => parts.extend([
+            ("jump", string(jump.as_str())),
+            ("rate", number(*rate)),
+            ("rate_uncertainty", number(*uncertainty)),
+            ("rate_unit", string(unit.as_str())),
+        ]),
+        ChannelSpec::Times {
+            t1,
+            t1_uncertainty,
+            t2,
+            t2_uncertainty,
+            unit,
+        } => parts.extend([
+            ("t1", number(*t1)),
+            ("t1_uncertainty", number(*t1_uncertainty)),
+            ("t2", number(*t2)),
+            ("t2_uncertainty", number(*t2_uncertainty)),
+            ("time_unit", string(unit.as_str())),
+        ]),
+    }
+    object(&parts)
+}
+
+/// `{ "k": v, ... }` on one line, keys in the given order.
+fn object(parts: &[(&str, String)]) -> String {
+    let inner: Vec<String> = parts
+        .iter()
+        .map(|(k, v)| format!("{}: {v}", string(k)))
+        .collect();
+    format!("{{ {} }}", inner.join(", "))
+}
+
+fn site_set(s: &SiteSet) -> String {
+    match s {
+        SiteSet::EachSite => string("each_site"),
+        SiteSet::Sites(v) => {
+            let sites: Vec<String> = v.iter().map(|s| s.to_string()).collect();
+            format!("{{ \"sites\": [{}] }}", sites.join(", "))
+        }
+    }
 }
 
 fn acts_on(a: &ActsOn) -> String {
