@@ -6,8 +6,10 @@
 //! XXZ systems with random fields), each with Lindblad jumps at stated rates (dephasing,
 //! decay, excitation, depolarising) and per-site preparation flips. For every observable and
 //! time the test checks `|open − closed| ≤ E_inc` and `|prepared − closed| ≤ E_prep`, in the
-//! global and the light-cone form, and that the project's own state-vector evolution
-//! (`src/simulate`) reproduces the closed values to 1e-8.
+//! global and the light-cone form, that the project's own state-vector evolution
+//! (`src/simulate`) reproduces the closed values to 1e-8, and that its density-matrix evolution
+//! (`src/simulate/lindblad.rs`, which `simulate` uses to rehearse device errors) reproduces the
+//! open and the prepared values to 1e-8.
 
 use std::collections::BTreeSet;
 
@@ -19,6 +21,7 @@ use quassay::bounds::light_cone::{site_instances, SiteCone, WalkGraph};
 use quassay::model::device::{DeviceModel, Jump};
 use quassay::model::{Boundary, Geometry, Lattice};
 use quassay::simulate::hamiltonian::{Operator, PauliSum};
+use quassay::simulate::lindblad::{evolve_density, Density, Jumps};
 use quassay::simulate::pauli::PauliString;
 use quassay::simulate::propagate::{evolve, Workspace};
 
@@ -573,4 +576,102 @@ fn the_device_terms_are_shown_in_the_summary_review_and_report() {
     assert!(html.contains("E_prep (preparation errors)"));
     // The readout term is covered for Z_1 only: one curve.
     assert_eq!(html.matches("E_meas (readout errors)").count(), 1, "{html}");
+}
+
+/// The density-matrix evolution of `src/simulate/lindblad.rs` against QuTiP: from the product
+/// state, with the fixture's jumps on every site, the open values; from the preparation
+/// mixture `(1 − ε_i)|ψ_i⟩⟨ψ_i| + ε_i|ψ̄_i⟩⟨ψ̄_i|` (ψ̄ the fixture's flipped label) without
+/// jumps, the prepared values; both to 1e-8 at every time.
+#[test]
+fn the_density_matrix_evolution_agrees_with_the_fixture() {
+    let fx = fixture();
+    let c = |re: f64| Complex64::new(re, 0.0);
+    let ket = |x: &str| -> [f64; 2] {
+        let s = std::f64::consts::FRAC_1_SQRT_2;
+        match x {
+            "0" => [1.0, 0.0],
+            "1" => [0.0, 1.0],
+            "+" => [s, s],
+            "-" => [s, -s],
+            other => panic!("{other}"),
+        }
+    };
+    let flipped = |x: &str| match x {
+        "0" => "1",
+        "1" => "0",
+        "+" => "-",
+        _ => "+",
+    };
+    for case in fx["cases"].as_array().unwrap() {
+        let n = lattice_of(case).n_sites();
+        let bonds: Vec<[u32; 2]> = case["bonds"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|b| {
+                let v = usizes(b);
+                [v[0] as u32, v[1] as u32]
+            })
+            .collect();
+        let j = vec![case["coupling"].as_f64().unwrap(); bonds.len()];
+        let h = PauliSum::xxz(
+            &bonds,
+            &j,
+            case["anisotropy"].as_f64().unwrap(),
+            &vec![0.0; n],
+            &f64s(&case["fields"]),
+        );
+        let op = Operator::compile(&h, n);
+        let labels: Vec<&str> = case["initial_state"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_str().unwrap())
+            .collect();
+        let eps = f64s(&case["preparation_eps"]);
+        let site = |i: usize, q: f64| {
+            let (g, b) = (ket(labels[i]), ket(flipped(labels[i])));
+            let m = |r: usize, s: usize| c((1.0 - q) * g[r] * g[s] + q * b[r] * b[s]);
+            [[m(0, 0), m(0, 1)], [m(1, 0), m(1, 1)]]
+        };
+        let pure: Vec<_> = (0..n).map(|i| site(i, 0.0)).collect();
+        let mixed: Vec<_> = (0..n).map(|i| site(i, eps[i])).collect();
+        let mut jumps = Jumps::default();
+        for ch in case["channels"].as_array().unwrap() {
+            let jump = Jump::parse(ch["jump"].as_str().unwrap()).unwrap();
+            for s in 0..n {
+                jumps.list.push((s, jump, ch["rate"].as_f64().unwrap()));
+            }
+        }
+        let times = f64s(&case["times"]);
+        for (start, jumps, key) in [(pure, jumps, "open"), (mixed, Jumps::default(), "prepared")] {
+            let mut rho = Density::product(&start);
+            let mut now = 0.0;
+            for (k, &t) in times.iter().enumerate() {
+                evolve_density(&op, &jumps, &mut rho, t - now);
+                now = t;
+                for o in case["observables"].as_array().unwrap() {
+                    let p = PauliString::from_letters(
+                        o["pauli"].as_str().unwrap(),
+                        &usizes(&o["sites"]),
+                    )
+                    .unwrap();
+                    let d = 1usize << n;
+                    let mut v = Complex64::new(0.0, 0.0);
+                    for b in 0..d {
+                        let (b2, phase) = p.apply_to_basis(b as u64);
+                        v += rho.at(b, b2 as usize) * phase;
+                    }
+                    let want = o[key][k].as_f64().unwrap();
+                    assert!(
+                        (v.re - want).abs() < QUTIP_TOL,
+                        "{} {key} {} at t = {t}: {} vs QuTiP {want}",
+                        case["name"],
+                        o["pauli"],
+                        v.re
+                    );
+                }
+            }
+        }
+    }
 }

@@ -22,10 +22,10 @@ use crate::bounds::global::SourceData;
 use crate::bounds::planning::{self, Answer, PointSetting, Which};
 use crate::inputs::noise_record::read_noise_record;
 use crate::model::device::SiteSet;
-use crate::numbers::short;
 use crate::model::lattice::{Boundary, Geometry, Lattice};
 use crate::model::noise::{ActsOn, Amplitude, NoiseRecord};
 use crate::model::units::TimeUnit;
+use crate::numbers::short;
 use crate::{Error, InputKind};
 
 /// Largest number of sites the system-size search goes to.

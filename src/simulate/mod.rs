@@ -7,12 +7,14 @@
 //! * [`pauli`]: Pauli strings as bit masks, applied to basis states;
 //! * [`hamiltonian`]: sums of Pauli strings, compiled into a diagonal plus grouped flips;
 //! * [`propagate`]: Chebyshev propagation with a rigorous truncation bound;
+//! * [`lindblad`]: density matrices under single-site Lindblad jumps, for device errors;
 //! * [`sample`]: random streams, noise draws and shot sampling;
 //! * [`run`]: the whole pipeline from a scenario to the simulated data;
 //! * [`fidelity`]: the ideal trajectory kept in memory, compared with one noisy evolution.
 
 pub mod fidelity;
 pub mod hamiltonian;
+pub mod lindblad;
 pub mod pauli;
 pub mod propagate;
 pub mod run;
