@@ -675,3 +675,192 @@ fn the_density_matrix_evolution_agrees_with_the_fixture() {
         }
     }
 }
+
+/// An invented scenario with device errors: a 4-site XXZ chain from the Néel state, a site
+/// detuning, and every device section (dephasing at 0.02/µs, T1 = 40 µs and T2 = 30 µs,
+/// preparation trace distance 0.02, readout flips 0.01 and 0.02 for every observable).
+fn device_scenario(edit: impl FnOnce(&mut Value)) -> quassay::inputs::scenario::Scenario {
+    quassay::inputs::scenario::parse_scenario(&device_scenario_json(edit).to_string()).unwrap()
+}
+
+/// The JSON of [`device_scenario`].
+fn device_scenario_json(edit: impl FnOnce(&mut Value)) -> Value {
+    let observables: Vec<Value> = (0..4)
+        .map(|k| serde_json::json!({"name": format!("Z_{k}"), "pauli": "Z", "sites": [k]}))
+        .chain([
+            serde_json::json!({"name": "stag", "pauli": "Z", "over": "each_site",
+                                   "weights": "staggered_mean"}),
+        ])
+        .collect();
+    let mut v = serde_json::json!({
+        "format": "quassay-scenario", "format_version": 1,
+        "run_id": "invented-device-rehearsal",
+        "description": "Invented rehearsal of device errors on a four-site chain.",
+        "time_unit": "us", "energy_unit": "MHz",
+        "lattice": {"geometry": "chain", "shape": [4], "boundary": "open"},
+        "hamiltonian": {"J": 0.05, "anisotropy": 0.5},
+        "initial_state": "neel",
+        "times": [0.0, 0.5, 1.0, 2.0, 3.0],
+        "observables": observables,
+        "realizations": 30, "shots": 2000, "seed": 1,
+        "noise": {
+            "format": "quassay-noise", "format_version": 2,
+            "frequency_unit": "kHz", "redrawn": "every_realization",
+            "sources": [{"name": "site detuning", "acts_on": "each_site", "operator": "Z",
+                         "amplitude": 5.0, "distribution": {"family": "uniform"},
+                         "mean_offset": 0.0, "mean_offset_uncertainty": 0.0}],
+            "incoherent": [
+                {"name": "dephasing", "acts_on": "each_site", "jump": "dephasing",
+                 "rate": 0.02, "rate_uncertainty": 0.0, "rate_unit": "1/us"},
+                {"name": "T1 and T2", "acts_on": "each_site", "t1": 40.0, "t1_uncertainty": 0.0,
+                 "t2": 30.0, "t2_uncertainty": 0.0, "time_unit": "us"}
+            ],
+            "preparation": [{"acts_on": "each_site", "trace_distance": 0.02,
+                             "trace_distance_uncertainty": 0.0}],
+            "readout": {"applies_to": "all", "errors": [{"acts_on": "each_site",
+                        "flip_0_to_1": 0.01, "flip_1_to_0": 0.02, "flip_uncertainty": 0.0}]}
+        }
+    });
+    edit(&mut v);
+    v
+}
+
+/// Rehearsal of device errors by exact simulation (density matrices): for 20 seeds the run is
+/// certified with its version 2 record. (a) The checks pass (docs/method.md §7.5): at least 19
+/// of 20 consistent. (b) Coverage: the certified interval holds the ideal model's value
+/// (`truth.ideal`, no noise, no device error) at every time and for every observable, in
+/// at least 19 of 20 seeds. (c) The same data with the record's device sections removed fail
+/// the checks at t = 0 in at least 19 of 20 seeds: the device errors are visible and the
+/// terms are what makes (a) and (b) hold. (d) The truth's exact value at t = 0 is the closed
+/// form with preparation flips and readout: for `Z_0` (site 0 starts in |0⟩, flipped with
+/// probability q), `(1 − q)(1 − 2p01) − q(1 − 2p10)`.
+#[test]
+fn device_errors_are_rehearsed_and_the_certificate_covers_them() {
+    use quassay::certificate::body::CertifyOptions;
+    use quassay::certificate::certify::compute_body;
+    let s = device_scenario(|_| {});
+    let dir = crate::util::scratch();
+    let (mut consistent, mut covered, mut flagged_without) = (0, 0, 0);
+    for seed in 1..21u64 {
+        let sim = quassay::simulate::run::simulate(&s, seed);
+        // (d): Z_0 at t = 0 with q = 0.02, p01 = 0.01, p10 = 0.02 (arithmetic by hand).
+        let z0 = &sim
+            .truth
+            .observables
+            .iter()
+            .find(|o| o.name == "Z_0")
+            .unwrap();
+        let want = 0.98 * (1.0 - 0.02) - 0.02 * (1.0 - 0.04);
+        for r in 0..3 {
+            assert!(
+                (z0.exact[[r, 0]] - want).abs() < 1e-12,
+                "{}",
+                z0.exact[[r, 0]]
+            );
+        }
+        crate::util::write_inputs(&s, seed, dir.path());
+        let c = compute_body(
+            &dir.path().join("run.h5"),
+            &dir.path().join("noise.json"),
+            "run.h5".into(),
+            "noise.json".into(),
+            &CertifyOptions::default(),
+        )
+        .unwrap();
+        consistent += usize::from(c.checks.consistent());
+        let mut all = true;
+        for (o, t) in c.body["observables"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .zip(&sim.truth.observables)
+        {
+            assert_eq!(o["name"], t.name.as_str());
+            let lo = crate::util::numbers(&o["certified_lower"]);
+            let hi = crate::util::numbers(&o["certified_upper"]);
+            for (k, ideal) in t.ideal.iter().enumerate() {
+                all &= lo[k] <= *ideal && *ideal <= hi[k];
+            }
+        }
+        covered += usize::from(all);
+        // (c): the record without its device sections.
+        let text = std::fs::read_to_string(dir.path().join("noise.json")).unwrap();
+        let mut v: Value = serde_json::from_str(&text).unwrap();
+        for key in ["incoherent", "preparation", "readout"] {
+            v.as_object_mut().unwrap().remove(key);
+        }
+        v["format_version"] = serde_json::json!(1);
+        std::fs::write(dir.path().join("plain.json"), v.to_string()).unwrap();
+        let plain = compute_body(
+            &dir.path().join("run.h5"),
+            &dir.path().join("plain.json"),
+            "run.h5".into(),
+            "plain.json".into(),
+            &CertifyOptions::default(),
+        )
+        .unwrap();
+        flagged_without += usize::from(plain.checks.preparation_failures() > 0);
+    }
+    assert!(consistent >= 19, "only {consistent} of 20 consistent");
+    assert!(covered >= 19, "only {covered} of 20 covered");
+    assert!(
+        flagged_without >= 19,
+        "only {flagged_without} of 20 flagged without"
+    );
+}
+
+/// What a scenario with device errors may not do: too many sites, noise redrawn every shot,
+/// a preparation_error key beside them, a readout name that is no observable; each refused
+/// with its pointer.
+#[test]
+fn scenarios_with_device_errors_have_limits() {
+    let cases: Vec<(Edit, &str, &str)> = vec![
+        (
+            Box::new(|v| {
+                v["lattice"]["shape"] = serde_json::json!([9]);
+                v["observables"] = serde_json::json!([{"name": "Z_0", "pauli": "Z", "sites": [0]}]);
+            }),
+            "/noise/incoherent",
+            "at most 8 sites",
+        ),
+        (
+            Box::new(|v| v["noise"]["redrawn"] = serde_json::json!("every_shot")),
+            "/noise/redrawn",
+            "every_realization or once",
+        ),
+        (
+            Box::new(|v| v["preparation_error"] = serde_json::json!({"flip_probability": 0.1})),
+            "/preparation_error",
+            "cannot be combined",
+        ),
+        (
+            Box::new(|v| v["noise"]["readout"]["applies_to"] = serde_json::json!(["Z_9"])),
+            "/noise/readout/applies_to/0",
+            "no observable",
+        ),
+    ];
+    for (edit, pointer, words) in cases {
+        let v = device_scenario_json(edit);
+        let problems = quassay::inputs::scenario::parse_scenario(&v.to_string()).unwrap_err();
+        assert!(
+            problems
+                .iter()
+                .any(|p| p.path == pointer && p.message.contains(words)),
+            "{pointer}: {problems:?}"
+        );
+    }
+}
+
+/// The scenario schema accepts a scenario with device sections and refuses them in a version 1
+/// record, as the reader does.
+#[test]
+fn the_scenario_schema_knows_the_device_sections() {
+    let text =
+        std::fs::read_to_string(crate::util::repo().join("schemas/scenario.schema.json")).unwrap();
+    let schema: Value = serde_json::from_str(&text).unwrap();
+    let validator = jsonschema::draft202012::new(&schema).unwrap();
+    assert!(validator.is_valid(&device_scenario_json(|_| {})));
+    let v1 = device_scenario_json(|v| v["noise"]["format_version"] = serde_json::json!(1));
+    assert!(!validator.is_valid(&v1));
+    assert!(quassay::inputs::scenario::parse_scenario(&v1.to_string()).is_err());
+}

@@ -181,6 +181,13 @@ pub struct DeviceRecord {
     pub readout: Option<Readout>,
 }
 
+impl DeviceRecord {
+    /// Whether the record has no device section.
+    pub fn is_empty(&self) -> bool {
+        self.incoherent.is_none() && self.preparation.is_none() && self.readout.is_none()
+    }
+}
+
 /// The device errors expanded against a run: one number per site.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct DeviceModel {

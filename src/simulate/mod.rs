@@ -8,6 +8,7 @@
 //! * [`hamiltonian`]: sums of Pauli strings, compiled into a diagonal plus grouped flips;
 //! * [`propagate`]: Chebyshev propagation with a rigorous truncation bound;
 //! * [`lindblad`]: density matrices under single-site Lindblad jumps, for device errors;
+//! * `open`: the realizations of a scenario with device errors, as density matrices;
 //! * [`sample`]: random streams, noise draws and shot sampling;
 //! * [`run`]: the whole pipeline from a scenario to the simulated data;
 //! * [`fidelity`]: the ideal trajectory kept in memory, compared with one noisy evolution.
@@ -15,6 +16,7 @@
 pub mod fidelity;
 pub mod hamiltonian;
 pub mod lindblad;
+mod open;
 pub mod pauli;
 pub mod propagate;
 pub mod run;

@@ -35,6 +35,7 @@ use rand_chacha::rand_core::RngCore;
 use rayon::prelude::*;
 
 use super::hamiltonian::{Operator, PauliSum};
+use super::open::{DeviceTruth, OpenSetup};
 use super::pauli::{parity_sign, PauliString};
 use super::propagate::{evolve, Workspace, DEFAULT_TOLERANCE};
 use super::sample;
@@ -131,11 +132,11 @@ pub struct Simulation {
 }
 
 /// An observable compiled for evaluation and sampling.
-struct Compiled {
-    terms: Vec<(PauliString, f64)>,
+pub(super) struct Compiled {
+    pub(super) terms: Vec<(PauliString, f64)>,
     /// Per site: the measured letter (`I` if not measured).
-    basis: Vec<char>,
-    single: bool,
+    pub(super) basis: Vec<char>,
+    pub(super) single: bool,
 }
 
 impl Compiled {
@@ -165,7 +166,7 @@ impl Compiled {
     }
 
     /// The value of the observable on a basis state of the rotated (measurement) basis.
-    fn outcome(&self, b: u64) -> f64 {
+    pub(super) fn outcome(&self, b: u64) -> f64 {
         self.terms
             .iter()
             .map(|(p, w)| w * parity_sign(b, p.support_mask()))
@@ -413,12 +414,12 @@ fn trajectory(
     stats.max_norm_drift = stats.max_norm_drift.max(drift);
 }
 
-struct RealizationResult {
-    values: Vec<Array2<f64>>, // per observable: 1 × T shot means
-    exact: Vec<Vec<f64>>,     // per observable: T
-    draws: Vec<Vec<f64>>,     // rows of g
-    patterns: Vec<PatternRow>,
-    stats: Stats,
+pub(super) struct RealizationResult {
+    pub(super) values: Vec<Array2<f64>>, // per observable: 1 × T shot means
+    pub(super) exact: Vec<Vec<f64>>,     // per observable: T
+    pub(super) draws: Vec<Vec<f64>>,     // rows of g
+    pub(super) patterns: Vec<PatternRow>,
+    pub(super) stats: Stats,
 }
 
 /// A realization after its random draws for the noise and the preparation, before evolution.
@@ -429,7 +430,12 @@ struct Prepared {
     patterns: BTreeMap<u64, u64>,
 }
 
-fn noisy_operator(base: &PauliSum, inst: &[TrueInstance], g: &[f64], n: usize) -> Operator {
+pub(super) fn noisy_operator(
+    base: &PauliSum,
+    inst: &[TrueInstance],
+    g: &[f64],
+    n: usize,
+) -> Operator {
     let mut h = base.clone();
     for (i, gi) in inst.iter().zip(g) {
         add_noise_term(
@@ -497,7 +503,27 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
     };
     let shots = s.shots;
     let k_obs = compiled.len();
-    let results: Vec<RealizationResult> = if redrawn == Redrawn::EveryShot {
+    let device = (!s.noise.device.is_empty()).then(|| {
+        let names: Vec<&str> = s.observables.iter().map(|o| o.name.as_str()).collect();
+        DeviceTruth::new(&s.noise.device, n, s.time_unit, &names)
+    });
+    let results: Vec<RealizationResult> = if let Some(truth) = &device {
+        // Device errors: density matrices (docs/simulator.md, "Device errors"); the scenario
+        // reader has refused noise redrawn every shot and a preparation_error key here.
+        let setup = OpenSetup {
+            s,
+            base: &base,
+            instances: &instances,
+            compiled: &compiled,
+            truth,
+            once: &once,
+            seed,
+        };
+        (0..s.realizations)
+            .into_par_iter()
+            .map(|r| setup.realization(r))
+            .collect()
+    } else if redrawn == Redrawn::EveryShot {
         (0..s.realizations)
             .into_par_iter()
             .map(|r| {
@@ -757,6 +783,10 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
             "quassay simulate, exact state vector, seed {seed}, every site's initial state \
              flipped with probability {} in every shot",
             p.flip_probability
+        ),
+        _ if device.is_some() => format!(
+            "quassay simulate, exact density matrix, seed {seed}, with the noise record's \
+             device errors at their central values"
         ),
         _ => format!("quassay simulate, exact state vector, seed {seed}"),
     };

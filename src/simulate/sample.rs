@@ -235,10 +235,17 @@ pub fn pauli_plus_count(rng: &mut impl RngCore, shots: u64, expectation: f64) ->
 /// Draws `shots` basis states from the probabilities `|ψ_b|²` (cumulative sums in index order,
 /// binary search per shot) and returns them in draw order.
 pub fn sample_basis_states(rng: &mut impl RngCore, psi: &[Complex64], shots: u64) -> Vec<u64> {
-    let mut cdf = Vec::with_capacity(psi.len());
+    let weights: Vec<f64> = psi.iter().map(|a| a.norm_sqr()).collect();
+    sample_weighted(rng, &weights, shots)
+}
+
+/// Draws `shots` indices with probabilities proportional to `weights` (≥ 0; cumulative sums
+/// in index order, one uniform and a binary search per shot), in draw order.
+pub fn sample_weighted(rng: &mut impl RngCore, weights: &[f64], shots: u64) -> Vec<u64> {
+    let mut cdf = Vec::with_capacity(weights.len());
     let mut acc = 0.0f64;
-    for a in psi {
-        acc += a.norm_sqr();
+    for &w in weights {
+        acc += w;
         cdf.push(acc);
     }
     let total = acc;
@@ -246,7 +253,7 @@ pub fn sample_basis_states(rng: &mut impl RngCore, psi: &[Complex64], shots: u64
         .map(|_| {
             let u = uniform01(rng) * total;
             let i = cdf.partition_point(|&c| c <= u);
-            i.min(psi.len() - 1) as u64
+            i.min(weights.len() - 1) as u64
         })
         .collect()
 }

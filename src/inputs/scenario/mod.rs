@@ -43,6 +43,8 @@ pub const MAX_SHOTS: u64 = 1_000_000_000_000;
 /// Largest number of evolutions of flipped initial states, `R · distinct patterns`, with a
 /// preparation error and noise not redrawn every shot (checked once the patterns are drawn).
 pub const MAX_PATTERN_EVOLUTIONS: u64 = 1_000_000;
+/// Most sites of a scenario with device errors (density matrices of 4^n entries).
+pub const MAX_DEVICE_SITES: usize = 8;
 
 /// The value a scenario spells `text`, from a table of (value, spelling) pairs.
 fn parse_label<T: Copy>(table: &[(T, &'static str)], text: &str) -> Option<T> {

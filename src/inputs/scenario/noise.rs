@@ -15,22 +15,6 @@ use super::*;
 pub(super) fn noise(rd: &mut Reader, v: &Value) -> Option<(NoiseRecord, Vec<NoiseOperator>)> {
     let (body, ops) = split_operators(rd, v, "/noise", "/sources")?;
     match noise_record_from_value(&body) {
-        Ok(rec) if rec.device != Default::default() => {
-            // The simulator evolves closed systems from the intended state and records exact
-            // outcomes; a scenario declaring device errors would rehearse a run it does not
-            // simulate.
-            for key in ["incoherent", "preparation", "readout"] {
-                if v.get(key).is_some() {
-                    rd.push(
-                        format!("/noise/{key}"),
-                        "is a device-error section; `simulate` does not rehearse device errors \
-                         yet (it evolves closed systems with exact readout): remove it from the \
-                         scenario, and add it to the record given to `certify`",
-                    );
-                }
-            }
-            None
-        }
         Ok(rec) => Some((rec, ops?)),
         Err(ps) => {
             rd.problems.extend(prefix(ps, "/noise"));

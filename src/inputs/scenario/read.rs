@@ -219,6 +219,9 @@ pub fn scenario_from_value(value: &Value) -> Result<Scenario, Vec<Problem>> {
             );
         }
     }
+    if let Some((record, _)) = &declared {
+        device_limits(&mut rd, record, &lattice, &observables, top);
+    }
     if !rd.problems.is_empty() {
         return Err(fix_root(rd.problems));
     }
@@ -278,6 +281,61 @@ pub fn scenario_from_value(value: &Value) -> Result<Scenario, Vec<Problem>> {
             "/",
             "is incomplete; see the other messages",
         )]),
+    }
+}
+
+/// What a scenario with device errors may not do (docs/scenario.md, "Device errors"): more than
+/// [`MAX_DEVICE_SITES`] sites, noise redrawn every shot, a `preparation_error` key beside them,
+/// or readout errors for an observable it does not have.
+fn device_limits(
+    rd: &mut Reader,
+    record: &crate::model::NoiseRecord,
+    lattice: &Option<crate::model::Lattice>,
+    observables: &Option<Vec<ObservableSpec>>,
+    top: &serde_json::Map<String, Value>,
+) {
+    let d = &record.device;
+    let Some(first) = [
+        ("incoherent", d.incoherent.is_some()),
+        ("preparation", d.preparation.is_some()),
+        ("readout", d.readout.is_some()),
+    ]
+    .into_iter()
+    .find_map(|(k, present)| present.then_some(k)) else {
+        return;
+    };
+    if let Some(l) = lattice {
+        if l.n_sites() > MAX_DEVICE_SITES {
+            rd.push(
+                format!("/noise/{first}"),
+                format!(
+                    "rehearsing device errors evolves density matrices, for at most \
+                     {MAX_DEVICE_SITES} sites; the lattice has {}: use a smaller one, or leave \
+                     the device sections out of the scenario",
+                    l.n_sites()
+                ),
+            );
+        }
+    }
+    if record.redrawn == crate::model::Redrawn::EveryShot {
+        rd.push(
+            "/noise/redrawn",
+            "is every_shot, which with device errors would need one density-matrix evolution \
+             per shot; rehearse device errors with every_realization or once",
+        );
+    }
+    if top.contains_key("preparation_error") {
+        rd.push(
+            "/preparation_error",
+            "cannot be combined with device sections; declare the preparation error as the \
+             record's `preparation` section (the simulation then uses its trace distance as the \
+             flip probability)",
+        );
+    }
+    if let Some(obs) = observables {
+        let names: Vec<String> = obs.iter().map(|o| o.name.clone()).collect();
+        rd.problems
+            .extend(prefix(d.unknown_readout_names(&names), "/noise"));
     }
 }
 
