@@ -67,6 +67,14 @@ pub fn run(args: &SimulateArgs) -> Result<Outcome> {
         "{} evolutions, {} products H·ψ, truncation bound ≤ {:.1e}, norm drift ≤ {:.1e}, {:.2} s",
         st.evolutions, st.products, st.max_truncation_bound, st.max_norm_drift, st.seconds
     );
+    if st.generator_applications > 0 {
+        let _ = writeln!(
+            out,
+            "device errors: {} realizations evolved as density matrices ({} applications of \
+             the Lindblad generator), at the record's central values (docs/scenario.md)",
+            scenario.realizations, st.generator_applications
+        );
+    }
     if let Some(p) = scenario.preparation_error {
         let what = if scenario.true_noise.redrawn == crate::model::Redrawn::EveryShot {
             "shots started with at least one flip"

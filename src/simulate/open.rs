@@ -161,7 +161,7 @@ impl OpenSetup<'_> {
         let none = vec![(0.0, 0.0); n];
         let mut now = 0.0;
         for (k, &t) in s.times.iter().enumerate() {
-            st.products += evolve_density(&h, &self.truth.jumps, &mut rho, t - now);
+            st.generator_applications += evolve_density(&h, &self.truth.jumps, &mut rho, t - now);
             now = t;
             for (o, c) in self.compiled.iter().enumerate() {
                 let flips = if self.truth.readout_applies[o] {

@@ -120,6 +120,8 @@ pub struct Stats {
     /// Sum over realizations of the number of distinct flip patterns evolved (0 without a
     /// preparation error; every_shot: shots with at least one flip).
     pub flip_patterns: usize,
+    /// Density-matrix evolutions (device errors): applications of the Lindblad generator.
+    pub generator_applications: usize,
     pub seconds: f64,
 }
 
@@ -701,6 +703,7 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
         stats.evolutions += res.stats.evolutions;
         stats.products += res.stats.products;
         stats.flip_patterns += res.stats.flip_patterns;
+        stats.generator_applications += res.stats.generator_applications;
         stats.max_truncation_bound = stats
             .max_truncation_bound
             .max(res.stats.max_truncation_bound);
