@@ -768,6 +768,13 @@ fn device_errors_are_rehearsed_and_the_certificate_covers_them() {
         )
         .unwrap();
         consistent += usize::from(c.checks.consistent());
+        // Term by term (docs/method.md §7.2): at t = 0 only each term's own site counts, so the
+        // staggered mean (weights ±1/4, spread 2 each) has E_prep = 4 · (1/4) · 2 · 0.02 = 0.04,
+        // not the whole support's 2 · 4 · 0.02 = 0.16; likewise Z_0 has 2 · 0.02.
+        for o in c.body["observables"].as_array().unwrap() {
+            let e = crate::util::numbers(&o["e_preparation"])[0];
+            assert!((e / 0.04 - 1.0).abs() < 1e-12, "{}: {e}", o["name"]);
+        }
         let mut all = true;
         for (o, t) in c.body["observables"]
             .as_array()

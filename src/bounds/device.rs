@@ -7,6 +7,8 @@
 //! * incoherent: `E_inc(t) ≤ s_O Σ_i Γ_i T_i(t)`, `Γ_i = Σ_j γ_j c_j` over the channels on site
 //!   `i`; global form `T_i = t`;
 //! * preparation: `E_prep(t) ≤ s_O Σ_i ε_i min(1, u_i(t))`; global form without `u_i`;
+//!   for a sum of local terms (at most [`MAX_TERMS_BY_TERM`]) both also term by term, with the
+//!   light cone of each term's support ([`DeviceTerms::tighten_by_terms`]);
 //! * readout: `E_meas ≤ s_O (1 − Π_{i∈X} (1 − p_i))` over the support `X` (all sites for a
 //!   global observable); for a sum of local terms also `Σ_a |w_a| s_a (1 − Π_{i∈X_a}(1 − p_i))`,
 //!   the smaller used. Only for observables the record declares read in the computational basis.
@@ -283,6 +285,52 @@ impl GlobalDevice {
     /// The same sums with `Σ Γ_i` replaced by `rate_sum`.
     pub fn with_rate_sum(self, rate_sum: f64) -> GlobalDevice {
         GlobalDevice { rate_sum, ..self }
+    }
+}
+
+/// Most terms of a sum for which the term-by-term forms are computed (one light cone each).
+pub const MAX_TERMS_BY_TERM: usize = 256;
+
+impl DeviceTerms {
+    /// Tightens the incoherent and preparation terms of a sum `Σ_a w_a O_a` with the
+    /// term-by-term forms `Σ_a |w_a| s_a (…)_a` (docs/method.md §7.1–7.2), given the terms of
+    /// each `O_a` computed with spread 1 (`per_term[a]`) and the factors `|w_a| s_a`: at each
+    /// time the smaller of the whole-support and term-by-term values is kept. Valid because
+    /// the change of the expectation of a sum is at most the sum of the changes of its terms,
+    /// each bounded for every draw.
+    pub fn tighten_by_terms(&mut self, per_term: &[DeviceTerms], factors: &[f64]) {
+        let m = margin(per_term.len());
+        let by = |pick: fn(&DeviceTerms) -> Option<&Vec<f64>>, k: usize| -> Option<f64> {
+            let mut sum = 0.0;
+            for (t, f) in per_term.iter().zip(factors) {
+                sum += f * pick(t)?.get(k)?;
+            }
+            Some(sum * m)
+        };
+        let n = self.total.len();
+        if let Some(inc) = &mut self.incoherent {
+            for (k, v) in inc.iter_mut().enumerate().take(n) {
+                if let Some(b) = by(|t| t.incoherent.as_ref(), k) {
+                    *v = v.min(b);
+                }
+            }
+        }
+        if let Some(prep) = &mut self.preparation {
+            for (k, v) in prep.iter_mut().enumerate().take(n) {
+                if let Some(b) = by(|t| t.preparation.as_ref(), k) {
+                    *v = v.min(b);
+                }
+            }
+        }
+        let meas = match self.readout {
+            ReadoutTerm::Bound(e) => e,
+            _ => 0.0,
+        };
+        for k in 0..n {
+            self.total[k] = self.incoherent.as_ref().map_or(0.0, |v| v[k])
+                + self.preparation.as_ref().map_or(0.0, |v| v[k])
+                + meas;
+        }
     }
 }
 

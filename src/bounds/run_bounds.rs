@@ -18,7 +18,7 @@ use std::collections::HashMap;
 
 use super::confidence::{self, ConfidenceError, ConfidenceSplit, Simultaneity};
 use super::data_statement::{observable_statement, DataInputs, DataStatement};
-use super::device::{DeviceData, DeviceTerms};
+use super::device::{DeviceData, DeviceTerms, MAX_TERMS_BY_TERM};
 use super::fidelity::{fidelity_bound, FidelityBound};
 use super::global::{
     evaluate_point, shot_hoeffding, shot_hoeffding_from_sum, shot_normal_from_sum, PointBounds,
@@ -537,7 +537,23 @@ impl<'a> RunEvaluator<'a> {
             }
             _ => None,
         };
-        Some(data.observable(name, spread, support, terms, self.times, cone.as_ref()))
+        let mut d = data.observable(name, spread, support, terms, self.times, cone.as_ref());
+        // Term by term (docs/method.md §7.2): one light cone per term, for sums of few terms.
+        if let (Some(t), Ok(g), true) = (terms, &self.graph, cone.is_some()) {
+            if t.supports.len() <= MAX_TERMS_BY_TERM {
+                let mut per_term = Vec::with_capacity(t.supports.len());
+                let mut factors = Vec::with_capacity(t.supports.len());
+                for ((sup, w), [lo, hi]) in t.supports.iter().zip(&t.weights).zip(&t.spectra) {
+                    let Ok(c) = SiteCone::new(g, sup, &self.sites, self.times) else {
+                        return Some(d);
+                    };
+                    per_term.push(data.observable(name, 1.0, sup, None, self.times, Some(&c)));
+                    factors.push(w.abs() * (hi - lo));
+                }
+                d.tighten_by_terms(&per_term, &factors);
+            }
+        }
+        Some(d)
     }
 
     /// The fidelity statement is a claim of its own: when the model statement was given only

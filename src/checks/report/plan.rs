@@ -9,7 +9,7 @@ use crate::checks::maurer_pontil;
 use crate::model::noise::Redrawn;
 use crate::model::Observable;
 
-use super::steps::{apply_holm, collect_failures, implied_scale, variance_test, Column};
+use super::steps::{apply_holm, collect_failures, implied_scale, variance_test, Allowance, Column};
 use super::*;
 
 /// The checks of a run, one observable at a time (so a streaming reader needs only one
@@ -148,11 +148,14 @@ impl<'a> CheckPlan<'a> {
                             rows: stats.rows,
                             shots,
                         };
-                        let other = other_v_noise.and_then(|v| v.get(k)).copied();
+                        let allowance = Allowance {
+                            other_v_noise: other_v_noise.and_then(|v| v.get(k)).copied(),
+                            device: device.and_then(|v| v.get(k)).copied(),
+                        };
                         let (redrawn, sources) = (self.redrawn, self.sources);
-                        let d = device.and_then(|v| v.get(k)).copied();
-                        let mut v =
-                            variance_test(o, &column, redrawn, sources, sens, other, d, self.gamma);
+                        let mut v = variance_test(
+                            o, &column, redrawn, sources, sens, allowance, self.gamma,
+                        );
                         v.std_lower_distribution_free = maurer_pontil::std_lower_bound(
                             v.sample_variance.sqrt(),
                             r,

@@ -21,6 +21,14 @@ pub(super) struct Column {
     pub(super) shots: ShotSum,
 }
 
+/// What the variance test allows beyond the global Efron–Stein sum at one time: a second upper
+/// bound of the same variance (light cone), and the device-error term (docs/method.md §7.5).
+#[derive(Debug, Clone, Copy, Default)]
+pub(super) struct Allowance {
+    pub(super) other_v_noise: Option<f64>,
+    pub(super) device: Option<f64>,
+}
+
 /// The variance test at one time (without the Holm fields and the lower bound).
 pub(super) fn variance_test(
     o: &Observable,
@@ -28,10 +36,13 @@ pub(super) fn variance_test(
     redrawn: Redrawn,
     sources: &[SourceData],
     sens: &[f64],
-    other_v_noise: Option<f64>,
-    device: Option<f64>,
+    allowance: Allowance,
     gamma: f64,
 ) -> VarianceTest {
+    let Allowance {
+        other_v_noise,
+        device,
+    } = allowance;
     let r = c.rows;
     let (mean, var) = (c.mean, c.variance);
     // The smaller of two upper bounds on the same variance (see `observable_with_variance`);
