@@ -192,33 +192,36 @@ fn the_preparation_term_starts_from_the_observables_own_sites() {
     assert_eq!(t.incoherent.as_ref().unwrap()[0], 0.0);
 }
 
+/// The fixture case's XXZ Hamiltonian with its fields, compiled, and its number of sites.
+fn case_operator(case: &Value) -> (Operator, usize) {
+    let n = lattice_of(case).n_sites();
+    let bonds: Vec<[u32; 2]> = case["bonds"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|b| {
+            let v = usizes(b);
+            [v[0] as u32, v[1] as u32]
+        })
+        .collect();
+    let j = vec![case["coupling"].as_f64().unwrap(); bonds.len()];
+    let h = PauliSum::xxz(
+        &bonds,
+        &j,
+        case["anisotropy"].as_f64().unwrap(),
+        &vec![0.0; n],
+        &f64s(&case["fields"]),
+    );
+    (Operator::compile(&h, n), n)
+}
+
 /// The project's own evolution (Chebyshev propagator of src/simulate) reproduces QuTiP's
 /// closed values to 1e-8: the fixture's systems are the ones the project's conventions describe.
 #[test]
 fn the_projects_evolution_agrees_with_the_fixture() {
     let fx = fixture();
     for case in fx["cases"].as_array().unwrap() {
-        let lattice = lattice_of(case);
-        let n = lattice.n_sites();
-        let bonds: Vec<[u32; 2]> = case["bonds"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|b| {
-                let v = usizes(b);
-                [v[0] as u32, v[1] as u32]
-            })
-            .collect();
-        let j = vec![case["coupling"].as_f64().unwrap(); bonds.len()];
-        let fields = f64s(&case["fields"]);
-        let h = PauliSum::xxz(
-            &bonds,
-            &j,
-            case["anisotropy"].as_f64().unwrap(),
-            &vec![0.0; n],
-            &fields,
-        );
-        let op = Operator::compile(&h, n);
+        let (op, _) = case_operator(case);
         // The product state, site i being bit i of the basis index.
         let s = std::f64::consts::FRAC_1_SQRT_2;
         let mut psi = vec![Complex64::new(1.0, 0.0)];
@@ -347,22 +350,33 @@ fn v2_record(edit: impl FnOnce(&mut Value)) -> Value {
     v
 }
 
+/// The h5py fixture run as `DIR/run.h5` and `record` as `DIR/noise-v2.json`.
+fn place(dir: &std::path::Path, record: &Value) -> (std::path::PathBuf, std::path::PathBuf) {
+    let run = dir.join("run.h5");
+    std::fs::copy(reference("h5py/run_f32_gzip.h5"), &run).unwrap();
+    let noise = dir.join("noise-v2.json");
+    std::fs::write(&noise, serde_json::to_string_pretty(record).unwrap()).unwrap();
+    (run, noise)
+}
+
+/// `quassay certify RUN --noise NOISE`, its output.
+fn certify(run: &std::path::Path, noise: &std::path::Path) -> std::process::Output {
+    crate::util::quassay()
+        .arg("certify")
+        .arg(run)
+        .arg("--noise")
+        .arg(noise)
+        .output()
+        .unwrap()
+}
+
 /// Certifies the h5py fixture run with `record`; returns the exit code, standard error and
 /// whether the folder changed.
 fn certify_with(record: &Value) -> (Option<i32>, String, bool, Option<Value>) {
     let dir = crate::util::scratch();
-    let run = dir.path().join("run.h5");
-    std::fs::copy(reference("h5py/run_f32_gzip.h5"), &run).unwrap();
-    let noise = dir.path().join("noise-v2.json");
-    std::fs::write(&noise, serde_json::to_string_pretty(record).unwrap()).unwrap();
+    let (run, noise) = place(dir.path(), record);
     let before = crate::util::entries(dir.path());
-    let out = crate::util::quassay()
-        .arg("certify")
-        .arg(&run)
-        .arg("--noise")
-        .arg(&noise)
-        .output()
-        .unwrap();
+    let out = certify(&run, &noise);
     let changed = crate::util::entries(dir.path()) != before;
     let body = changed.then(|| crate::util::body(&dir.path().join("run.cert.json")));
     (
@@ -497,19 +511,10 @@ fn a_version_2_record_adds_the_device_terms_and_nothing_else_changes_without_the
 #[test]
 fn the_device_terms_are_shown_in_the_summary_review_and_report() {
     let dir = crate::util::scratch();
-    let run = dir.path().join("run.h5");
-    std::fs::copy(reference("h5py/run_f32_gzip.h5"), &run).unwrap();
-    let noise = dir.path().join("noise-v2.json");
     let record = v2_record(|v| v["readout"]["applies_to"] = serde_json::json!(["Z_1"]));
-    std::fs::write(&noise, serde_json::to_string_pretty(&record).unwrap()).unwrap();
+    let (run, noise) = place(dir.path(), &record);
     let cert = dir.path().join("run.cert.json");
-    let out = crate::util::quassay()
-        .arg("certify")
-        .arg(&run)
-        .arg("--noise")
-        .arg(&noise)
-        .output()
-        .unwrap();
+    let out = certify(&run, &noise);
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(matches!(out.status.code(), Some(0) | Some(3)), "{text}");
     for words in ["E_inc", "E_prep", "E_meas", "E_device", "not covered"] {
@@ -603,25 +608,7 @@ fn the_density_matrix_evolution_agrees_with_the_fixture() {
         _ => "+",
     };
     for case in fx["cases"].as_array().unwrap() {
-        let n = lattice_of(case).n_sites();
-        let bonds: Vec<[u32; 2]> = case["bonds"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .map(|b| {
-                let v = usizes(b);
-                [v[0] as u32, v[1] as u32]
-            })
-            .collect();
-        let j = vec![case["coupling"].as_f64().unwrap(); bonds.len()];
-        let h = PauliSum::xxz(
-            &bonds,
-            &j,
-            case["anisotropy"].as_f64().unwrap(),
-            &vec![0.0; n],
-            &f64s(&case["fields"]),
-        );
-        let op = Operator::compile(&h, n);
+        let (op, n) = case_operator(case);
         let labels: Vec<&str> = case["initial_state"]
             .as_array()
             .unwrap()
@@ -741,6 +728,17 @@ fn device_errors_are_rehearsed_and_the_certificate_covers_them() {
     let s = device_scenario(|_| {});
     let dir = crate::util::scratch();
     let (mut consistent, mut covered, mut flagged_without) = (0, 0, 0);
+    // The run in `dir` certified with the record `name` beside it (the path certify takes).
+    let with_record = |name: &str| {
+        compute_body(
+            &dir.path().join("run.h5"),
+            &dir.path().join(name),
+            "run.h5".into(),
+            name.into(),
+            &CertifyOptions::default(),
+        )
+        .unwrap()
+    };
     for seed in 1..21u64 {
         let sim = quassay::simulate::run::simulate(&s, seed);
         // (d): Z_0 at t = 0 with q = 0.02, p01 = 0.01, p10 = 0.02 (arithmetic by hand).
@@ -759,14 +757,7 @@ fn device_errors_are_rehearsed_and_the_certificate_covers_them() {
             );
         }
         crate::util::write_inputs(&s, seed, dir.path());
-        let c = compute_body(
-            &dir.path().join("run.h5"),
-            &dir.path().join("noise.json"),
-            "run.h5".into(),
-            "noise.json".into(),
-            &CertifyOptions::default(),
-        )
-        .unwrap();
+        let c = with_record("noise.json");
         consistent += usize::from(c.checks.consistent());
         // Term by term (docs/method.md §7.2): at t = 0 only each term's own site counts, so the
         // staggered mean (weights ±1/4, spread 2 each) has E_prep = 4 · (1/4) · 2 · 0.02 = 0.04,
@@ -798,14 +789,7 @@ fn device_errors_are_rehearsed_and_the_certificate_covers_them() {
         }
         v["format_version"] = serde_json::json!(1);
         std::fs::write(dir.path().join("plain.json"), v.to_string()).unwrap();
-        let plain = compute_body(
-            &dir.path().join("run.h5"),
-            &dir.path().join("plain.json"),
-            "run.h5".into(),
-            "plain.json".into(),
-            &CertifyOptions::default(),
-        )
-        .unwrap();
+        let plain = with_record("plain.json");
         flagged_without += usize::from(plain.checks.preparation_failures() > 0);
     }
     assert!(consistent >= 19, "only {consistent} of 20 consistent");
