@@ -9,7 +9,7 @@
 use serde_json::Value;
 
 /// A number for people: four decimals with trailing zeros dropped between 10⁻³ and 10⁴, else
-/// three significant digits in exponent form; `unbounded` for infinity, `-` for NaN. Full
+/// four significant digits in exponent form; `unbounded` for infinity, `-` for NaN. Full
 /// precision stays in the certificate and in `--json` output.
 pub fn short(x: f64) -> String {
     if x.is_infinite() {

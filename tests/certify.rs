@@ -760,3 +760,40 @@ fn the_default_envelope_holds_no_host_name_and_no_directory() {
     let line = cert["envelope"]["command_line"].to_string();
     assert!(line.contains(c.dir.path().to_str().unwrap()), "{line}");
 }
+
+/// The summary table says `vacuous` where a bound reaches the observable's range (the bundled
+/// example with every amplitude × 50, so that at the worst time both E_avg and the worst case
+/// reach the spread 2) instead of printing the number, and names where the full precision is.
+#[test]
+fn the_summary_says_vacuous_where_a_bound_reaches_the_range() {
+    let dir = crate::util::scratch();
+    let example = crate::util::repo().join("example_runs/chain12");
+    std::fs::copy(example.join("run.h5"), dir.path().join("run.h5")).unwrap();
+    let text = std::fs::read_to_string(example.join("noise.json")).unwrap();
+    let mut record: Value = serde_json::from_str(&text).unwrap();
+    for s in record["sources"].as_array_mut().unwrap() {
+        s["amplitude"] = serde_json::json!(s["amplitude"].as_f64().unwrap() * 50.0);
+    }
+    std::fs::write(dir.path().join("noise.json"), record.to_string()).unwrap();
+    let out = crate::util::quassay()
+        .arg("certify")
+        .arg(dir.path().join("run.h5"))
+        .arg("--noise")
+        .arg(dir.path().join("noise.json"))
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    let body = crate::util::body(&dir.path().join("run.cert.json"));
+    let o = &body["observables"][0];
+    let last = crate::util::numbers(&o["e_wc"]).last().copied().unwrap();
+    assert!(last >= o["spread"].as_f64().unwrap(), "{last}");
+    let row = text
+        .lines()
+        .find(|l| l.starts_with(o["name"].as_str().unwrap()))
+        .unwrap();
+    assert!(row.contains("vacuous"), "{row}");
+    assert!(
+        text.contains("Full precision: the certificate and --json"),
+        "{text}"
+    );
+}

@@ -164,3 +164,40 @@ fn an_unknown_observable_or_a_bad_claim_is_refused() {
         .assert()
         .code(2);
 }
+
+/// Numbers printed for people are short (docs/review.md): every decimal number in the text of
+/// `review` has at most five significant digits (a raw double such as 0.050000000000000044 has
+/// seventeen), while `--json` keeps the certificate's full precision.
+#[test]
+fn the_review_text_prints_short_numbers() {
+    let dir = scratch();
+    let cert = certificate(dir.path());
+    let out = quassay().arg("review").arg(&cert).output().unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    let significant = |token: &str| {
+        let mantissa = token.split(['e', 'E']).next().unwrap_or("");
+        mantissa
+            .chars()
+            .filter(char::is_ascii_digit)
+            .collect::<String>()
+            .trim_start_matches('0')
+            .len()
+    };
+    for token in text.split(|c: char| !(c.is_ascii_digit() || c == '.' || c == 'e' || c == '-')) {
+        let token = token.trim_matches(|c| c == '.' || c == '-' || c == 'e');
+        if token.contains('.') && token.parse::<f64>().is_ok() {
+            assert!(significant(token) <= 5, "{token} in: {text}");
+        }
+    }
+    assert!(text.contains("0.025 of the total 0.05"), "{text}");
+    assert!(text.contains("the Bonferroni correction"), "{text}");
+    let json = quassay()
+        .args(["review", "--json"])
+        .arg(&cert)
+        .output()
+        .unwrap();
+    let v: Value = serde_json::from_slice(&json.stdout).unwrap();
+    let e_avg = v["review"]["gain"][0]["e_avg"].as_f64().unwrap();
+    let b = body(&cert);
+    assert!(crate::util::numbers(&b["observables"][0]["e_avg"]).contains(&e_avg));
+}

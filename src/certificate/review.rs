@@ -459,9 +459,22 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
         })
         .unwrap_or_default();
     let statement = claim_v["statement"].as_str().unwrap_or("unknown");
+    // Numbers for people (full precision stays in the certificate and in --json).
+    let p = |v: &Value| number(v).map_or_else(|| v.to_string(), short);
+    let correction = match split["correction"].as_str() {
+        Some(c) if c.starts_with("bonferroni") => format!(
+            "the Bonferroni correction{}",
+            c.strip_prefix("bonferroni")
+                .map(|rest| rest.replace(" x ", " × "))
+                .unwrap_or_default()
+        ),
+        Some(c) if c.starts_with("none") => "no correction (pointwise)".to_string(),
+        Some(c) => format!("the correction '{c}'"),
+        None => "no correction".to_string(),
+    };
     claim.push(format!(
         "Confidence {} ({}): {}.",
-        claim_v["confidence"],
+        p(&claim_v["confidence"]),
         statement,
         if statement == "simultaneous" {
             "the intervals hold together, at every recorded time and for every observable"
@@ -471,22 +484,22 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
     ));
     claim.push(format!(
         "The failure probability {} was split by the rule '{}': {} to the noise fluctuation and \
-         {} to the shot noise, over {} points with {} correction; one evolution (E_1) gets {} \
+         {} to the shot noise, over {} points with {correction}; one evolution (E_1) gets {} \
          per point.",
         if body.get("format_minor").is_some() {
             format!(
                 "of the model statement, {} of the total {},",
-                split["model_statement_total"], split["epsilon"]
+                p(&split["model_statement_total"]),
+                p(&split["epsilon"])
             )
         } else {
-            split["epsilon"].to_string()
+            p(&split["epsilon"])
         },
         split["rule"].as_str().unwrap_or("?"),
-        split["noise_fluctuation_total"],
-        split["shot_noise_total"],
+        p(&split["noise_fluctuation_total"]),
+        p(&split["shot_noise_total"]),
         split["points"],
-        split["correction"].as_str().unwrap_or("no"),
-        split["single_evolution_per_point"],
+        p(&split["single_evolution_per_point"]),
     ));
     if body.get("format_minor").is_some() {
         claim.push(format!(
@@ -498,9 +511,9 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
              common mean and unbiased shot averages; it needs no noise amplitude beyond those \
              terms.",
             body["format_minor"],
-            split["model_statement_total"],
-            split["data_statement_total"],
-            split["data_statement_per_point"],
+            p(&split["model_statement_total"]),
+            p(&split["data_statement_total"]),
+            p(&split["data_statement_per_point"]),
         ));
         for o in body["observables"].as_array().into_iter().flatten() {
             let d = &o["data_statement"];

@@ -257,6 +257,8 @@ struct Row {
     e_shot: f64,
     e_wc: f64,
     gain: f64,
+    /// `s_O`: a bound at least this large is vacuous.
+    spread: f64,
     /// With a data statement: the model's half-width and the certified one at the worst
     /// time (`None` where the two statements are disjoint), and at how many times the data
     /// statement is the narrower.
@@ -292,6 +294,7 @@ fn rows(c: &Computed) -> Vec<Row> {
             let e_wc = p.map_or(0.0, |p| p.e_wc);
             Row {
                 name: o.name.clone(),
+                spread: o.spread,
                 worst_time: c.loaded.run.times.get(k).copied().unwrap_or(0.0),
                 e_avg,
                 e_shot: p.map_or(0.0, |p| p.e_shot),
@@ -314,9 +317,19 @@ fn rows(c: &Computed) -> Vec<Row> {
         .collect()
 }
 
-/// A number for the table: four decimals or three significant digits (see
+/// A number for the table: four decimals or four significant digits (see
 /// [`crate::numbers::short`]).
 pub(super) use crate::numbers::short as show;
+
+/// A bound for the table: `vacuous` where it reaches the observable's range `s_O` (it then
+/// says nothing: every value of the spectrum is within it), else [`show`].
+fn bounded(x: f64, spread: f64) -> String {
+    if x >= spread {
+        "vacuous".into()
+    } else {
+        show(x)
+    }
+}
 
 pub(super) fn last_fidelity(c: &Computed) -> String {
     match c.bounds.fidelity.last() {
@@ -409,9 +422,9 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
         table.push([
             r.name,
             format!("{} {unit}", show(r.worst_time)),
-            show(r.e_avg),
+            bounded(r.e_avg, r.spread),
             show(r.e_shot),
-            show(r.e_wc),
+            bounded(r.e_wc, r.spread),
             if r.gain.is_infinite() {
                 "unbounded".into()
             } else {
@@ -423,7 +436,9 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
     s.push_str(&aligned(&table, |j| j > 0));
     s.push_str(
         "\nE_avg: error of the averaged trace from the noise; E_shot: from the finite shots; \
-         worst case: no cancellation between sources; gain: worst case / E_avg.\n",
+         worst case: no cancellation between sources; gain: worst case / E_avg; vacuous: the \
+         bound reaches the observable's whole range. Full precision: the certificate and \
+         --json.\n",
     );
     if data.is_some() {
         let mut table: Vec<[String; 5]> = vec![[
