@@ -63,6 +63,38 @@ pub enum ReadoutTerm {
     Bound(f64),
 }
 
+impl ReadoutTerm {
+    /// `E_meas`, 0 where the record has no readout section or does not cover the observable.
+    pub fn value(self) -> f64 {
+        match self {
+            ReadoutTerm::Bound(e) => e,
+            _ => 0.0,
+        }
+    }
+}
+
+/// `E_inc + E_prep + E_meas` at each of `n` times, in that order (absent terms count 0).
+fn sum_per_time(
+    incoherent: &Option<Vec<f64>>,
+    preparation: &Option<Vec<f64>>,
+    meas: f64,
+    n: usize,
+) -> Vec<f64> {
+    (0..n)
+        .map(|k| {
+            incoherent.as_ref().map_or(0.0, |v| v[k])
+                + preparation.as_ref().map_or(0.0, |v| v[k])
+                + meas
+        })
+        .collect()
+}
+
+/// `e + d` capped at the spread `s_o`: how every error bound takes a device term (docs/method.md
+/// §7), in the bounds, the ideal-reference test and planning alike.
+pub fn add_device(e: f64, d: f64, s_o: f64) -> f64 {
+    (e + d).min(s_o)
+}
+
 /// `1 + (n + 4)·2^{-52}`: the margin of a sum of `n` non-negative terms (module header).
 fn margin(n: usize) -> f64 {
     1.0 + (n as f64 + 4.0) * f64::EPSILON
@@ -137,17 +169,8 @@ impl DeviceData {
             Some((_, applies)) if !applies.covers(name) => ReadoutTerm::NotDeclared,
             Some((p, _)) => ReadoutTerm::Bound(readout_bound(s_o, p, support, terms)),
         };
-        let meas = match readout {
-            ReadoutTerm::Bound(e) => e,
-            _ => 0.0,
-        };
-        let total = (0..times.len())
-            .map(|k| {
-                incoherent.as_ref().map_or(0.0, |v| v[k])
-                    + preparation.as_ref().map_or(0.0, |v| v[k])
-                    + meas
-            })
-            .collect();
+        let meas = readout.value();
+        let total = sum_per_time(&incoherent, &preparation, meas, times.len());
         DeviceTerms {
             incoherent,
             preparation,
@@ -276,10 +299,20 @@ impl GlobalDevice {
         self.rate_sum == 0.0 && self.preparation_sum == 0.0 && self.readout_any == 0.0
     }
 
+    /// `[E_inc, E_prep, E_meas]` at time `t` for spread `s_o`, global forms.
+    pub fn terms(&self, s_o: f64, t: f64) -> [f64; 3] {
+        [
+            s_o * (t * self.rate_sum),
+            s_o * self.preparation_sum,
+            s_o * self.readout_any,
+        ]
+    }
+
     /// `E_inc + E_prep + E_meas` at time `t` for spread `s_o`, global forms, in the order the
     /// certificate adds them.
     pub fn term(&self, s_o: f64, t: f64) -> f64 {
-        s_o * (t * self.rate_sum) + s_o * self.preparation_sum + s_o * self.readout_any
+        let [inc, prep, meas] = self.terms(s_o, t);
+        inc + prep + meas
     }
 
     /// The same sums with `Σ Γ_i` replaced by `rate_sum`.
@@ -322,15 +355,7 @@ impl DeviceTerms {
                 }
             }
         }
-        let meas = match self.readout {
-            ReadoutTerm::Bound(e) => e,
-            _ => 0.0,
-        };
-        for k in 0..n {
-            self.total[k] = self.incoherent.as_ref().map_or(0.0, |v| v[k])
-                + self.preparation.as_ref().map_or(0.0, |v| v[k])
-                + meas;
-        }
+        self.total = sum_per_time(&self.incoherent, &self.preparation, self.readout.value(), n);
     }
 }
 

@@ -20,7 +20,7 @@
 //! error stays non-decreasing in the amplitudes, the time, the system and the rate. Pure
 //! functions, no I/O.
 
-use super::device::GlobalDevice;
+use super::device::{add_device, GlobalDevice};
 use super::global::{self, PointInputs, ShotData, SourceData};
 use crate::model::noise::Redrawn;
 
@@ -75,7 +75,7 @@ impl PointSetting {
         if self.device.is_zero() {
             e
         } else {
-            (e + self.device.term(self.s_o, t)).min(self.s_o)
+            add_device(e, self.device.term(self.s_o, t), self.s_o)
         }
     }
 }

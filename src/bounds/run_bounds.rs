@@ -18,7 +18,7 @@ use std::collections::HashMap;
 
 use super::confidence::{self, ConfidenceError, ConfidenceSplit, Simultaneity};
 use super::data_statement::{observable_statement, DataInputs, DataStatement};
-use super::device::{DeviceData, DeviceTerms, MAX_TERMS_BY_TERM};
+use super::device::{add_device, DeviceData, DeviceTerms, MAX_TERMS_BY_TERM};
 use super::fidelity::{fidelity_bound, FidelityBound};
 use super::global::{
     evaluate_point, shot_hoeffding, shot_hoeffding_from_sum, shot_normal_from_sum, PointBounds,
@@ -464,7 +464,7 @@ impl<'a> RunEvaluator<'a> {
         let with_device = |e: f64, k: usize| match &device {
             // Deterministic terms: added to E_1 and E_avg, the sum capped at the range
             // (docs/method.md §7).
-            Some(d) => (e + d.total[k]).min(spread),
+            Some(d) => add_device(e, d.total[k], spread),
             None => e,
         };
         let noise = self.noise_terms(spread, r);

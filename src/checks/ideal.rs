@@ -10,6 +10,7 @@
 //! for bit (tested below), and the bisection takes the same path.
 
 use super::columns::ShotSum;
+use crate::bounds::device::add_device;
 use crate::bounds::global::{
     averaged_fluctuation, bias_from_ln_sum, cap, fluctuation_scale, systematic, worst_case,
     FluctuationScale, SourceData,
@@ -85,7 +86,7 @@ impl HalfWidth {
         };
         let e_avg = cap(self.s_o, self.e_wc, self.sys_bias + fluct);
         let e_avg = match self.device {
-            Some(d) => (e_avg + d).min(self.s_o),
+            Some(d) => add_device(e_avg, d, self.s_o),
             None => e_avg,
         };
         e_avg + self.shots.term(self.s_o, self.realizations, alpha)

@@ -493,7 +493,7 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
             "table": table,
             "gain_exponent": slopes.iter().map(|(w, s)| (w.to_string(), json!(s))).collect::<serde_json::Map<_, _>>(),
         });
-        if prob.record.device != Default::default() {
+        if !prob.record.device.is_empty() {
             j["device_errors"] = device_json(&set, t, unit, rates.as_deref());
         }
         let mut s = serde_json::to_string_pretty(&j).unwrap_or_default();
@@ -528,11 +528,12 @@ const DEVICE_NOTE: &str = "the record's device errors (docs/method.md section 7)
 /// The device terms at time `t` and (e), for `--json`.
 fn device_json(set: &PointSetting, t: f64, unit: &str, rates: Option<&[Pair]>) -> Value {
     let d = &set.device;
+    let [inc, prep, meas] = d.terms(set.s_o, t);
     let mut v = json!({
         "included": DEVICE_NOTE,
-        "e_incoherent": finite(set.s_o * (t * d.rate_sum)),
-        "e_preparation": finite(set.s_o * d.preparation_sum),
-        "e_readout": finite(set.s_o * d.readout_any),
+        "e_incoherent": finite(inc),
+        "e_preparation": finite(prep),
+        "e_readout": finite(meas),
         "e_device": finite(d.term(set.s_o, t)),
         "sites": d.sites,
         "rate_unit": format!("1/{unit}"),
@@ -652,14 +653,15 @@ fn render_text(
             None => "no shot term".into(),
         }
     ));
-    if prob.record.device != Default::default() {
+    if !prob.record.device.is_empty() {
         let d = &set.device;
+        let [inc, prep, meas] = d.terms(set.s_o, args.time);
         s.push_str(&format!(
             "device errors at t = {} {unit}: E_inc {}, E_prep {}, E_meas {} (E_device {}); {DEVICE_NOTE}\n\n",
             show(args.time),
-            show(set.s_o * (args.time * d.rate_sum)),
-            show(set.s_o * d.preparation_sum),
-            show(set.s_o * d.readout_any),
+            show(inc),
+            show(prep),
+            show(meas),
             show(d.term(set.s_o, args.time)),
         ));
     }

@@ -417,10 +417,11 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
         "F_low(last t)",
     ];
     let fid = last_fidelity(c);
+    let all_rows = rows(c);
     let mut table: Vec<[String; 7]> = vec![header.map(String::from)];
-    for r in rows(c) {
+    for r in &all_rows {
         table.push([
-            r.name,
+            r.name.clone(),
             format!("{} {unit}", show(r.worst_time)),
             bounded(r.e_avg, r.spread),
             show(r.e_shot),
@@ -449,10 +450,10 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
             "data narrower",
         ]
         .map(String::from)];
-        for r in rows(c) {
+        for r in &all_rows {
             if let Some((model, certified, narrower)) = r.data {
                 table.push([
-                    r.name,
+                    r.name.clone(),
                     format!("{} {unit}", show(r.worst_time)),
                     show(model),
                     certified.map_or_else(|| "disjoint".into(), show),
@@ -468,9 +469,9 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
              themselves, docs/method.md section 6).\n",
         );
     }
-    if rows(c).iter().any(|r| r.device.is_some()) {
+    if all_rows.iter().any(|r| r.device.is_some()) {
         s.push('\n');
-        s.push_str(&device_table(c, unit));
+        s.push_str(&device_table(&all_rows, unit));
     }
     let status = verdict_status(cert);
     s.push_str(&format!(
@@ -491,7 +492,7 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
 
 /// The device-error table: each term at the observable's worst time, and its share of the
 /// half-width there.
-fn device_table(c: &Computed, unit: &str) -> String {
+fn device_table(all_rows: &[Row], unit: &str) -> String {
     let mut table: Vec<[String; 7]> = vec![[
         "observable",
         "worst t",
@@ -503,11 +504,11 @@ fn device_table(c: &Computed, unit: &str) -> String {
     ]
     .map(String::from)];
     let absent = |x: Option<f64>| x.map_or_else(|| "-".into(), show);
-    for r in rows(c) {
+    for r in all_rows {
         let Some(d) = &r.device else { continue };
         let half_width = d.half_width;
         table.push([
-            r.name,
+            r.name.clone(),
             format!("{} {unit}", show(r.worst_time)),
             absent(d.incoherent),
             absent(d.preparation),

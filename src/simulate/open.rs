@@ -25,7 +25,7 @@ use num_complex::Complex64;
 
 use super::hamiltonian::PauliSum;
 use super::lindblad::{evolve_density, recorded_parity, Density, Jumps};
-use super::run::{noisy_operator, Compiled, RealizationResult, Stats, TrueInstance};
+use super::run::{noisy_operator, site_ket, Compiled, RealizationResult, Stats, TrueInstance};
 use super::sample;
 use crate::inputs::scenario::{Scenario, SiteState};
 use crate::model::device::{ChannelSpec, DeviceRecord, Jump, SiteSet};
@@ -100,21 +100,9 @@ impl DeviceTruth {
     }
 }
 
-/// A single-site state as a 2 × 2 density matrix, and its image under X.
+/// The single-site state `(1 − q)|ψ⟩⟨ψ| + q X|ψ⟩⟨ψ|X` as a 2 × 2 density matrix.
 fn site_matrix(l: SiteState, q: f64) -> [[Complex64; 2]; 2] {
-    let h = std::f64::consts::FRAC_1_SQRT_2;
-    let ket = |l: SiteState| -> [Complex64; 2] {
-        let (r, i) = (Complex64::new(h, 0.0), Complex64::new(0.0, h));
-        match l {
-            SiteState::Zero => [Complex64::new(1.0, 0.0), Complex64::new(0.0, 0.0)],
-            SiteState::One => [Complex64::new(0.0, 0.0), Complex64::new(1.0, 0.0)],
-            SiteState::Plus => [r, r],
-            SiteState::Minus => [r, -r],
-            SiteState::PlusI => [r, i],
-            SiteState::MinusI => [r, -i],
-        }
-    };
-    let a = ket(l);
+    let a = site_ket(l);
     let b = [a[1], a[0]]; // X|ψ⟩
     let m = |r: usize, c: usize| (1.0 - q) * a[r] * a[c].conj() + q * b[r] * b[c].conj();
     [[m(0, 0), m(0, 1)], [m(1, 0), m(1, 1)]]
@@ -163,24 +151,34 @@ impl OpenSetup<'_> {
         for (k, &t) in s.times.iter().enumerate() {
             st.generator_applications += evolve_density(&h, &self.truth.jumps, &mut rho, t - now);
             now = t;
+            // Outcome probabilities per measured basis, computed once for all observables
+            // that share it (in first-use order, so the arithmetic does not depend on it).
+            let mut by_basis: Vec<(&[char], Vec<f64>)> = Vec::new();
             for (o, c) in self.compiled.iter().enumerate() {
                 let flips = if self.truth.readout_applies[o] {
                     &self.truth.readout
                 } else {
                     &none
                 };
-                let p = rho.probabilities(&c.basis);
+                let j = match by_basis.iter().position(|(b, _)| *b == c.basis.as_slice()) {
+                    Some(j) => j,
+                    None => {
+                        by_basis.push((&c.basis, rho.probabilities(&c.basis)));
+                        by_basis.len() - 1
+                    }
+                };
+                let p = &by_basis[j].1;
                 let e: f64 = c
                     .terms
                     .iter()
-                    .map(|(ps, w)| w * recorded_parity(&p, ps.support_mask(), flips))
+                    .map(|(ps, w)| w * recorded_parity(p, ps.support_mask(), flips))
                     .sum();
                 exact[o][k] = e;
                 values[o][[0, k]] = if c.single {
                     sample::pauli_shot_mean(&mut rng, s.shots, e)
                 } else {
                     let measured: u64 = c.terms.iter().fold(0, |m, (ps, _)| m | ps.support_mask());
-                    let states = sample::sample_weighted(&mut rng, &p, s.shots);
+                    let states = sample::sample_weighted(&mut rng, p, s.shots);
                     let mut sum = 0.0;
                     for b in states {
                         let mut b = b;

@@ -290,19 +290,24 @@ pub fn bond_half_spread(anisotropy: f64) -> f64 {
     0.5 * (max - min)
 }
 
+/// The amplitudes `(⟨0|ψ⟩, ⟨1|ψ⟩)` of a single-site state.
+pub fn site_ket(l: SiteState) -> [Complex64; 2] {
+    let h = std::f64::consts::FRAC_1_SQRT_2;
+    match l {
+        SiteState::Zero => [Complex64::new(1.0, 0.0), Complex64::new(0.0, 0.0)],
+        SiteState::One => [Complex64::new(0.0, 0.0), Complex64::new(1.0, 0.0)],
+        SiteState::Plus => [Complex64::new(h, 0.0), Complex64::new(h, 0.0)],
+        SiteState::Minus => [Complex64::new(h, 0.0), Complex64::new(-h, 0.0)],
+        SiteState::PlusI => [Complex64::new(h, 0.0), Complex64::new(0.0, h)],
+        SiteState::MinusI => [Complex64::new(h, 0.0), Complex64::new(0.0, -h)],
+    }
+}
+
 /// The product state of `labels`, site `i` = bit `i`.
 pub fn product_state(labels: &[SiteState]) -> Vec<Complex64> {
-    let h = std::f64::consts::FRAC_1_SQRT_2;
     let mut psi = vec![Complex64::new(1.0, 0.0)];
-    for (i, l) in labels.iter().enumerate() {
-        let (a0, a1) = match l {
-            SiteState::Zero => (Complex64::new(1.0, 0.0), Complex64::new(0.0, 0.0)),
-            SiteState::One => (Complex64::new(0.0, 0.0), Complex64::new(1.0, 0.0)),
-            SiteState::Plus => (Complex64::new(h, 0.0), Complex64::new(h, 0.0)),
-            SiteState::Minus => (Complex64::new(h, 0.0), Complex64::new(-h, 0.0)),
-            SiteState::PlusI => (Complex64::new(h, 0.0), Complex64::new(0.0, h)),
-            SiteState::MinusI => (Complex64::new(h, 0.0), Complex64::new(0.0, -h)),
-        };
+    for (i, &l) in labels.iter().enumerate() {
+        let [a0, a1] = site_ket(l);
         let half = 1usize << i;
         let mut next = vec![Complex64::new(0.0, 0.0); half * 2];
         for (b, &amp) in psi.iter().enumerate() {
