@@ -21,6 +21,8 @@ pub enum InputKind {
     Scenario,
     /// A certificate (JSON, format `quassay-certificate`).
     Certificate,
+    /// An array description (JSON, format `quassay-arrays`) with the arrays it names.
+    Arrays,
 }
 
 impl InputKind {
@@ -31,6 +33,7 @@ impl InputKind {
             InputKind::NoiseRecord => "noise record",
             InputKind::Scenario => "scenario",
             InputKind::Certificate => "certificate",
+            InputKind::Arrays => "array description",
         }
     }
 }

@@ -207,6 +207,45 @@ fn a_support_site_beyond_the_lattice_is_rejected() {
 }
 
 #[test]
+fn a_support_dataset_is_read_and_checked_like_the_attribute() {
+    // The dataset form (a minor extension of layout v1, docs/run-format.md): a site beyond the
+    // lattice is refused at the dataset's path; both forms at once are refused.
+    let (d, p) = broken(|f| {
+        let g = f.group("observables/Z_1").unwrap();
+        g.delete_attr("support").unwrap();
+        g.new_dataset_builder()
+            .with_data(&array![4i64])
+            .create("support")
+            .unwrap();
+    });
+    rejects(d.path(), &p, &["/observables/Z_1/support", "n_sites = 4"]);
+    let (d, p) = broken(|f| {
+        let g = f.group("observables/Z_1").unwrap();
+        g.new_dataset_builder()
+            .with_data(&array![1i64])
+            .create("support")
+            .unwrap();
+    });
+    rejects(
+        d.path(),
+        &p,
+        &[
+            "/observables/Z_1/support",
+            "both as an attribute and as a dataset",
+        ],
+    );
+    let (_d, p) = broken(|f| {
+        let g = f.group("observables/Z_1").unwrap();
+        g.delete_attr("support").unwrap();
+        g.new_dataset_builder()
+            .with_data(&array![1i64])
+            .create("support")
+            .unwrap();
+    });
+    assert_eq!(read_run(&p).unwrap().observables[1].support, vec![1]);
+}
+
+#[test]
 fn a_value_outside_the_spectrum_is_rejected() {
     let (d, p) = broken(|f| {
         let mut v = z_values();
@@ -374,4 +413,33 @@ fn inspect_leaves_the_input_untouched() {
     assert_eq!(std::fs::read(&path).unwrap(), bytes);
     assert_eq!(std::fs::metadata(&path).unwrap().modified().unwrap(), mtime);
     assert_eq!(entries(dir.path()), ["run.h5"]);
+}
+
+#[test]
+fn the_h5py_recipe_of_the_run_format_page_writes_a_valid_run_file() {
+    if !crate::util::python_has(&["numpy", "h5py"]) {
+        return;
+    }
+    let recipe =
+        crate::util::doc_block("docs/run-format.md", "## A complete h5py recipe", "python");
+    let dir = crate::util::scratch();
+    let mut child = std::process::Command::new("python3")
+        .arg("-")
+        .current_dir(dir.path())
+        .stdin(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    use std::io::Write as _;
+    child
+        .stdin
+        .take()
+        .unwrap()
+        .write_all(recipe.as_bytes())
+        .unwrap();
+    assert!(child.wait().unwrap().success(), "the recipe runs");
+    crate::util::quassay()
+        .arg("inspect")
+        .arg(dir.path().join("run.h5"))
+        .assert()
+        .code(0);
 }

@@ -2,6 +2,7 @@
 
 mod util;
 
+mod assemble;
 mod batch;
 mod bounds_exact;
 mod budget;
@@ -13,6 +14,7 @@ mod hostile;
 mod light_cone;
 mod noise_record;
 mod properties;
+mod readme;
 mod rehearsal;
 mod report;
 mod review;

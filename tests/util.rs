@@ -271,3 +271,40 @@ pub fn binomial_critical(n: u64, p: f64, level: f64) -> u64 {
     }
     0
 }
+
+// ---------------------------------------------------------------------------------------------
+// Python with NumPy and h5py, for the recipes of the docs and the README that CI runs.
+
+/// Whether `python3` imports every module of `modules`. In CI (`CI` set; `.ci/run` installs
+/// NumPy and h5py) a missing module FAILS the calling test; locally it is skipped with a note.
+pub fn python_has(modules: &[&str]) -> bool {
+    let code = format!("import {}", modules.join(", "));
+    let ok = std::process::Command::new("python3")
+        .args(["-c", &code])
+        .output()
+        .is_ok_and(|o| o.status.success());
+    if !ok {
+        assert!(
+            std::env::var_os("CI").is_none(),
+            "python3 with {modules:?} is missing; CI must install it (.ci/run)"
+        );
+        eprintln!("skipped: python3 with {modules:?} is not available and CI is unset");
+    }
+    ok
+}
+
+/// The first fenced code block of kind `lang` after the heading `heading` in the file `rel`
+/// (relative to the repository).
+pub fn doc_block(rel: &str, heading: &str, lang: &str) -> String {
+    let text = std::fs::read_to_string(repo().join(rel)).unwrap();
+    let after = text
+        .split_once(heading)
+        .unwrap_or_else(|| panic!("{rel} has no heading {heading}"))
+        .1;
+    let fence = format!("```{lang}\n");
+    let start = after
+        .find(&fence)
+        .unwrap_or_else(|| panic!("{rel}: no {lang} block after {heading}"));
+    let body = &after[start + fence.len()..];
+    body[..body.find("```").unwrap()].to_string()
+}

@@ -17,6 +17,8 @@ pub struct Cli {
 pub enum Command {
     /// Show what a run file holds and every problem with its layout.
     Inspect(InspectArgs),
+    /// Write a run file from NumPy arrays (.npy, .npz) and a JSON description of them.
+    Assemble(super::assemble::AssembleArgs),
     /// Compute error bounds and the fidelity bound for a run and write a certificate.
     Certify(CertifyArgs),
     /// Recompute a certificate from its archived inputs and check it reproduces byte for byte.

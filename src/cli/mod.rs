@@ -5,6 +5,7 @@
 //! not an error.
 
 pub mod args;
+pub mod assemble;
 pub mod batch;
 pub mod budget;
 pub mod certify;
@@ -67,6 +68,7 @@ pub fn main() -> ExitCode {
     };
     let result = match &cli.command {
         Command::Inspect(a) => inspect::run(a),
+        Command::Assemble(a) => assemble::run(a),
         // One run file as before, or a batch (several runs, or folders of runs).
         Command::Certify(a) => match a.runs.as_slice() {
             [one] if !one.is_dir() => certify::run_single(a, one),

@@ -15,7 +15,7 @@
 //! the same problems.
 
 mod access;
-mod checks;
+pub(crate) mod checks;
 mod layout;
 mod observables;
 mod stream;

@@ -47,7 +47,15 @@ pub struct WriteOptions {
     pub values: FloatWidth,
     /// Dataset layout and compression.
     pub compression: Compression,
+    /// Store every `support` as a one-dimensional dataset (the form that always works) rather
+    /// than as an attribute. Supports longer than [`SUPPORT_ATTRIBUTE_MAX`] are always stored as
+    /// datasets: HDF5's default (compact) attributes hold at most 64 KiB.
+    pub support_dataset: bool,
 }
+
+/// The longest support written as an attribute (32 KiB of int64, half of HDF5's 64 KiB limit
+/// for an attribute stored in the object header, which is what its defaults give).
+pub const SUPPORT_ATTRIBUTE_MAX: usize = 4096;
 
 /// Writes `run` as a complete layout-v1 file at `path` (created or truncated).
 ///
@@ -161,7 +169,14 @@ impl Writer<'_> {
         }
         if !o.support.is_empty() {
             let s: Vec<i64> = o.support.iter().map(|&x| x as i64).collect();
-            self.int_vec_attr(&g, &at, "support", &s)?;
+            if self.options.support_dataset || s.len() > SUPPORT_ATTRIBUTE_MAX {
+                g.new_dataset_builder()
+                    .with_data(&Array1::from(s))
+                    .create("support")
+                    .map_err(|e| self.err(&format!("{at}/support"), e))?;
+            } else {
+                self.int_vec_attr(&g, &at, "support", &s)?;
+            }
         }
         self.f64_attr(&g, &at, "spectrum_min", o.spectrum_min)?;
         self.f64_attr(&g, &at, "spectrum_max", o.spectrum_max)?;
@@ -387,12 +402,36 @@ mod tests {
                     level: 6,
                     shuffle: true,
                 },
+                support_dataset: true,
             },
         ] {
             let path = dir.path().join(format!("{options:?}.h5"));
             write_run(&path, &run, &options).unwrap();
             assert_eq!(read_run(&path).unwrap(), run, "{options:?}");
         }
+    }
+
+    #[test]
+    fn a_support_too_large_for_an_attribute_is_written_as_a_dataset() {
+        // 10^4 sites: 80 kB of int64, over HDF5's 64 KiB limit for a compact attribute (the
+        // "object header message is too large" error h5py's defaults give).
+        let dir = tempfile::tempdir().unwrap();
+        let mut run = sample_run();
+        let n = 10_000;
+        run.lattice = Lattice::regular(Geometry::Chain, &[n], Boundary::Open).unwrap();
+        run.hamiltonian.bond_norms = None;
+        for o in &mut run.observables {
+            o.support = (0..n).collect();
+            o.terms = None;
+        }
+        let path = dir.path().join("large.h5");
+        write_run(&path, &run, &WriteOptions::default()).unwrap();
+        {
+            let file = hdf5::File::open(&path).unwrap();
+            let g = file.group("observables/M").unwrap();
+            assert!(g.link_exists("support"), "support stored as a dataset");
+        }
+        assert_eq!(read_run(&path).unwrap(), run);
     }
 
     #[test]
@@ -420,6 +459,7 @@ mod tests {
                 level: 9,
                 shuffle: false,
             },
+            support_dataset: false,
         };
         write_run(&path, &run, &options).unwrap();
         assert_eq!(read_run(&path).unwrap(), run);

@@ -17,7 +17,6 @@
 mod noise;
 mod observables;
 mod read;
-mod reader;
 mod system;
 
 use crate::model::{FrequencyUnit, Lattice, NoiseRecord, TimeUnit};

@@ -8,8 +8,8 @@ use crate::inputs::noise_record::noise_record_from_value;
 use crate::model::noise::Amplitude;
 use crate::model::{ActsOn, Lattice, NoiseRecord};
 
-use super::reader::{prefix, Reader};
 use super::*;
+use crate::inputs::json_reader::{prefix, Reader};
 
 /// The declared noise: operators taken out, spectra filled in, then the record reader.
 pub(super) fn noise(rd: &mut Reader, v: &Value) -> Option<(NoiseRecord, Vec<NoiseOperator>)> {

@@ -7,8 +7,8 @@ use serde_json::Value;
 
 use crate::model::Lattice;
 
-use super::reader::Reader;
 use super::*;
+use crate::inputs::json_reader::Reader;
 
 pub(super) fn observables(rd: &mut Reader, v: &Value, l: &Lattice) -> Option<Vec<ObservableSpec>> {
     let Some(arr) = v.as_array() else {

@@ -11,9 +11,9 @@ use crate::model::{FrequencyUnit, Lattice, TimeUnit};
 
 use super::noise::{noise, true_noise};
 use super::observables::observables;
-use super::reader::{fix_root, prefix, Reader};
 use super::system::{hamiltonian, initial_state, lattice, times};
 use super::*;
+use crate::inputs::json_reader::{fix_root, prefix, Reader};
 
 const TOP_KEYS: [&str; 18] = [
     "format",

@@ -5,8 +5,8 @@ use serde_json::Value;
 
 use crate::model::{Boundary, Geometry, Lattice};
 
-use super::reader::Reader;
 use super::*;
+use crate::inputs::json_reader::Reader;
 
 pub(super) fn lattice(rd: &mut Reader, v: &Value) -> Option<Lattice> {
     let obj = rd.object(

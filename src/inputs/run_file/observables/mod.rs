@@ -23,8 +23,8 @@ use shots::read_shots;
 use terms::read_terms;
 
 use super::access::{
-    attr_problem, f64_attr, f64_dataset, float_storage, int_attr, int_vec_attr, note_unknown,
-    open_attr, open_dataset, open_group, string_attr, Collector,
+    attr_problem, f64_attr, f64_dataset, float_storage, int_attr, int_dataset, int_vec_attr,
+    note_unknown, open_attr, open_dataset, open_group, string_attr, Collector,
 };
 use super::checks;
 use super::stream::{ContentSink, ObservableOutline, ObservableRead};
@@ -47,6 +47,7 @@ const OBS_MEMBERS: &[&str] = &[
     "shots",
     "stderr",
     "ideal",
+    "support",
     "terms_support",
     "terms_weight",
     "terms_spectrum",
@@ -344,12 +345,17 @@ fn read_one(
         Some(v.to_vec())
     });
 
-    // Support.
-    let support = match int_vec_attr(c, g, at, "support") {
-        None if open_attr(g, "support").is_some() => None,
-        None => Some(Vec::new()),
-        Some(raw) => match checks::check_support(&raw, ctx.n_sites) {
+    // Support: an attribute, or (a minor extension of layout v1, for supports too large for
+    // HDF5's compact attributes) a one-dimensional dataset; not both.
+    let support = match read_support(c, g, at) {
+        Err(()) => None,
+        Ok(None) => Some(Vec::new()),
+        Ok(Some((raw, dataset))) => match checks::check_support(&raw, ctx.n_sites) {
             Ok(v) => Some(v),
+            Err(m) if dataset => {
+                c.problem(format!("{at}/support"), m);
+                None
+            }
             Err(m) => {
                 attr_problem(c, at, "support", m);
                 None
@@ -453,4 +459,40 @@ fn read_one(
         }),
         s,
     )
+}
+
+/// The raw sites of `support` and whether they are a dataset: `Ok(None)` when absent, `Err(())`
+/// when a problem was reported.
+/// The dataset form is read whole (a support has at most `n_sites` entries) and, like the
+/// attribute, is recorded in the certificate's body rather than by a content digest.
+fn read_support(c: &mut Collector, g: &Group, at: &str) -> Result<Option<(Vec<i128>, bool)>, ()> {
+    let path = format!("{at}/support");
+    match (open_attr(g, "support").is_some(), g.link_exists("support")) {
+        (true, true) => {
+            c.problem(
+                &path,
+                "is given both as an attribute and as a dataset; keep one of them",
+            );
+            Err(())
+        }
+        (true, false) => int_vec_attr(c, g, at, "support")
+            .map(|v| Some((v, false)))
+            .ok_or(()),
+        (false, false) => Ok(None),
+        (false, true) => {
+            let ds = open_dataset(c, g, at, "support").ok_or(())?;
+            let a = int_dataset(c, &ds, &path).ok_or(())?;
+            if a.ndim() != 1 {
+                c.problem(
+                    &path,
+                    format!(
+                        "has shape {:?}; store the sites as a one-dimensional integer dataset",
+                        a.shape()
+                    ),
+                );
+                return Err(());
+            }
+            Ok(Some((a.iter().copied().collect(), true)))
+        }
+    }
 }

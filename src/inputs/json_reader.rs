@@ -1,21 +1,22 @@
-//! The problem collector of the scenario reader and its typed getters: each records a problem
-//! at a JSON pointer (RFC 6901) and returns `None`, so one pass reports every problem.
+//! The problem collector of the JSON readers (scenarios, array descriptions) and its typed
+//! getters: each records a problem at a JSON pointer (RFC 6901) and returns `None`, so one pass
+//! reports every problem.
 
 use serde_json::{Map, Value};
 
 use crate::error::Problem;
 
 /// Collects problems while reading.
-pub(super) struct Reader {
-    pub(super) problems: Vec<Problem>,
+pub(crate) struct Reader {
+    pub(crate) problems: Vec<Problem>,
 }
 
 impl Reader {
-    pub(super) fn push(&mut self, path: impl Into<String>, message: impl Into<String>) {
+    pub(crate) fn push(&mut self, path: impl Into<String>, message: impl Into<String>) {
         self.problems.push(Problem::new(path, message));
     }
 
-    pub(super) fn object<'v>(
+    pub(crate) fn object<'v>(
         &mut self,
         v: &'v Value,
         path: &str,
@@ -39,7 +40,7 @@ impl Reader {
         Some(obj)
     }
 
-    pub(super) fn required<'v>(
+    pub(crate) fn required<'v>(
         &mut self,
         obj: &'v Map<String, Value>,
         path: &str,
@@ -52,7 +53,7 @@ impl Reader {
         v
     }
 
-    pub(super) fn string<'v>(&mut self, v: &'v Value, path: &str) -> Option<&'v str> {
+    pub(crate) fn string<'v>(&mut self, v: &'v Value, path: &str) -> Option<&'v str> {
         let s = v.as_str();
         if s.is_none() {
             self.push(path, "must be a string");
@@ -60,7 +61,7 @@ impl Reader {
         s
     }
 
-    pub(super) fn number(&mut self, v: &Value, path: &str) -> Option<f64> {
+    pub(crate) fn number(&mut self, v: &Value, path: &str) -> Option<f64> {
         match v.as_f64() {
             Some(x) if x.is_finite() => Some(x),
             _ => {
@@ -70,7 +71,7 @@ impl Reader {
         }
     }
 
-    pub(super) fn integer(&mut self, v: &Value, path: &str, min: u64, max: u64) -> Option<u64> {
+    pub(crate) fn integer(&mut self, v: &Value, path: &str, min: u64, max: u64) -> Option<u64> {
         match v.as_u64() {
             Some(x) if x >= min && x <= max => Some(x),
             _ => {
@@ -81,7 +82,7 @@ impl Reader {
     }
 
     /// A number for all `count` items or an array of `count` numbers.
-    pub(super) fn per_item(
+    pub(crate) fn per_item(
         &mut self,
         v: &Value,
         path: &str,
@@ -116,12 +117,12 @@ impl Reader {
 }
 
 /// JSON-pointer escaping of one reference token (RFC 6901).
-fn escape(key: &str) -> String {
+pub(crate) fn escape(key: &str) -> String {
     key.replace('~', "~0").replace('/', "~1")
 }
 
 /// The root pointer is `""` in RFC 6901; messages use `/` for the whole file.
-pub(super) fn fix_root(problems: Vec<Problem>) -> Vec<Problem> {
+pub(crate) fn fix_root(problems: Vec<Problem>) -> Vec<Problem> {
     problems
         .into_iter()
         .map(|mut p| {
@@ -133,7 +134,7 @@ pub(super) fn fix_root(problems: Vec<Problem>) -> Vec<Problem> {
         .collect()
 }
 
-pub(super) fn prefix(problems: Vec<Problem>, base: &str) -> Vec<Problem> {
+pub(crate) fn prefix(problems: Vec<Problem>, base: &str) -> Vec<Problem> {
     problems
         .into_iter()
         .map(|p| {
