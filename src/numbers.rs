@@ -8,9 +8,10 @@
 
 use serde_json::Value;
 
-/// A number for people: four decimals with trailing zeros dropped between 10⁻³ and 10⁴, else
-/// four significant digits in exponent form; `unbounded` for infinity, `-` for NaN. Full
-/// precision stays in the certificate and in `--json` output.
+/// A number for people: four significant digits, trailing zeros dropped, between 10⁻³ and 10⁴
+/// (0.02162, 6.635, 1235), else four significant digits in exponent form (3.063e-4);
+/// `unbounded` for infinity, `-` for NaN. Full precision stays in the certificate and in
+/// `--json` output.
 pub fn short(x: f64) -> String {
     if x.is_infinite() {
         "unbounded".into()
@@ -19,10 +20,16 @@ pub fn short(x: f64) -> String {
     } else if x == 0.0 {
         "0".into()
     } else if (1e-3..1e4).contains(&x.abs()) {
-        format!("{:.4}", x)
-            .trim_end_matches('0')
-            .trim_end_matches('.')
-            .to_string()
+        // 10^digits ≤ |x| < 10^(digits+1), digits in -3..=3: 3 − digits decimals leave four
+        // significant digits.
+        let digits = x.abs().log10().floor() as i32;
+        let decimals = (3 - digits).clamp(0, 6) as usize;
+        let text = format!("{x:.decimals$}");
+        if text.contains('.') {
+            text.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            text
+        }
     } else {
         format!("{x:.3e}")
     }
@@ -34,5 +41,32 @@ pub fn num(x: f64) -> Value {
         Some(n) => Value::Number(n),
         None if x.is_nan() => Value::String("undefined".into()),
         None => Value::String("unbounded".into()),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::short;
+
+    #[test]
+    fn numbers_for_people_have_four_significant_digits() {
+        for (x, text) in [
+            (0.050000000000000044, "0.05"),
+            (0.025000000000000022, "0.025"),
+            (0.7319504711246749, "0.732"),
+            (6.63536, "6.635"),
+            (0.00123456, "0.001235"),
+            (1234.6, "1235"),
+            (1000.0, "1000"),
+            (9.99996, "10"),
+            (-0.1180194308784786, "-0.118"),
+            (3.0633e-4, "3.063e-4"),
+            (25700.0, "2.570e4"),
+            (2004041236836073500.0, "2.004e18"),
+            (f64::INFINITY, "unbounded"),
+            (0.0, "0"),
+        ] {
+            assert_eq!(short(x), text, "{x}");
+        }
     }
 }

@@ -20,4 +20,5 @@ mod report;
 mod review;
 mod run_file;
 mod simulate;
+mod snapshots;
 mod sums;

@@ -95,6 +95,9 @@ pub struct ObservableRows {
     /// from the reported mean, `max(mean − certified_lower, certified_upper − mean)`; NaN
     /// where the model and data statements are disjoint (nothing is certified there).
     pub certified_reach: Option<Vec<f64>>,
+    /// `s_O`, the width of the observable's spectrum: a bound this large is vacuous (∞ when
+    /// the body does not give it).
+    pub spread: f64,
 }
 
 impl ObservableRows {
@@ -169,6 +172,7 @@ pub fn read_view(body: &Value) -> Result<BodyView, Vec<Problem>> {
                         .as_str()
                         .is_some_and(|s| s.contains("approximate")),
                     certified_reach: certified_reach(o, k, times.len(), &mut problems),
+                    spread: o["spread"].as_f64().unwrap_or(f64::INFINITY),
                 };
                 for (c, len) in [
                     ("e_avg", rows.e_avg.len()),
@@ -396,6 +400,8 @@ pub struct Gain {
     pub e_wc: f64,
     /// `e_wc / e_avg` (∞ if the worst case is unbounded; NaN if `e_avg` is 0).
     pub gain: f64,
+    /// `s_O`: where `e_avg` reaches it, the bound is vacuous and no gain is stated.
+    pub spread: f64,
 }
 
 /// Gains per observable.
@@ -411,6 +417,7 @@ pub fn gains(view: &BodyView) -> Vec<Gain> {
                 e_avg,
                 e_wc,
                 gain: if e_avg > 0.0 { e_wc / e_avg } else { f64::NAN },
+                spread: o.spread,
             })
         })
         .collect()
@@ -811,7 +818,20 @@ impl Explanation {
              time):\n",
         );
         for g in &self.gains {
-            let gain = if g.gain.is_infinite() {
+            let vacuous = |x: f64| {
+                if x >= g.spread {
+                    format!(
+                        "{} (reaches the observable's range {}: vacuous)",
+                        short(x),
+                        short(g.spread)
+                    )
+                } else {
+                    short(x)
+                }
+            };
+            let gain = if g.e_avg >= g.spread {
+                "no gain stated (E_avg is vacuous)".to_string()
+            } else if g.gain.is_infinite() {
                 "unbounded (the worst case is infinite)".to_string()
             } else if g.gain.is_nan() {
                 "- (E_avg = 0)".to_string()
@@ -822,8 +842,8 @@ impl Explanation {
                 "  - {}: at t = {} {time_unit}, worst case {} vs E_avg {}: {gain}\n",
                 g.observable,
                 short(g.time),
-                short(g.e_wc),
-                short(g.e_avg)
+                vacuous(g.e_wc),
+                vacuous(g.e_avg)
             ));
         }
         s.push_str(&format!(

@@ -576,19 +576,9 @@ fn rate_rows(s: &mut String, set: &PointSetting, rates: &[Pair], unit: &str) {
     }
 }
 
+/// Numbers for people: the project's one rule ([`crate::numbers::short`]).
 fn show(x: f64) -> String {
-    if x.is_infinite() {
-        "unbounded".into()
-    } else if x == 0.0 {
-        "0".into()
-    } else if (1e-3..1e5).contains(&x.abs()) {
-        format!("{x:.5}")
-            .trim_end_matches('0')
-            .trim_end_matches('.')
-            .to_string()
-    } else {
-        format!("{x:.4e}")
-    }
+    short(x)
 }
 
 fn show_answer(a: Answer, integer: bool) -> String {

