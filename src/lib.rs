@@ -10,9 +10,12 @@
 //! * [`outputs`]: writing files atomically (runs, records, certificates);
 //! * [`simulate`]: exact state-vector simulation that produces synthetic runs;
 //! * [`cli`]: the command line, kept thin;
-//! * [`numbers`]: the JSON form of a computed number (below both checks and certificate).
+//! * [`numbers`]: the JSON form of a computed number (below both checks and certificate);
+//! * [`progress`]: counts of long work, drawn as bars on a terminal only (a side channel that
+//!   never reaches an output).
 //!
-//! Each module uses only modules below it: `model`, `error` and `numbers` nothing else;
+//! Each module uses only modules below it: `model`, `error`, `numbers` and `progress` nothing
+//! else;
 //! `inputs` and `bounds` the model; `checks` the bounds; `certificate` the checks, bounds and
 //! inputs; `simulate` the inputs; `outputs` the certificate, inputs and simulator; `cli` all.
 
@@ -25,6 +28,7 @@ pub mod inputs;
 pub mod model;
 pub mod numbers;
 pub mod outputs;
+pub mod progress;
 pub mod simulate;
 
 pub use error::{Error, InputKind, Problem, Result};

@@ -193,13 +193,19 @@ fn simulate_is_reproducible_bit_for_bit_for_a_fixed_seed() {
         std::fs::read(dir.path().join("b/noise.json")).unwrap()
     );
     // Another seed gives other data.
-    quassay()
+    let c = quassay()
         .args(["simulate", "--seed", "12"])
         .arg(&sc)
         .arg("-o")
         .arg(dir.path().join("c"))
         .assert()
         .success();
+    // Standard error is a pipe here: no progress bar (crate::progress draws on terminals only).
+    assert!(
+        c.get_output().stderr.is_empty(),
+        "{}",
+        String::from_utf8_lossy(&c.get_output().stderr)
+    );
     let rc = read("c");
     assert_ne!(ra.observables[0].values, rc.observables[0].values);
     // The ideal trace does not depend on the seed.

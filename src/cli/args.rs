@@ -33,6 +33,20 @@ pub enum Command {
     Report(super::report::ReportArgs),
 }
 
+impl Command {
+    /// Whether the command prints JSON (then no progress bar is drawn beside it).
+    pub fn json(&self) -> bool {
+        match self {
+            Command::Inspect(a) => a.json,
+            Command::Certify(a) => a.json,
+            Command::Verify(a) => a.json,
+            Command::Review(a) => a.json,
+            Command::Budget(a) => a.json,
+            Command::Assemble(_) | Command::Simulate(_) | Command::Report(_) => false,
+        }
+    }
+}
+
 /// `quassay inspect RUN.h5`.
 #[derive(Debug, Args)]
 pub struct InspectArgs {

@@ -23,7 +23,6 @@
 //! every certificate body is the same as when its run is certified alone.
 
 use std::ffi::OsString;
-use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Mutex;
@@ -332,8 +331,8 @@ fn certify_all(planned: &[Planned], args: &CertifyArgs) -> Vec<Line> {
         .collect();
     let slots: Vec<Mutex<Option<Line>>> = planned.iter().map(|_| Mutex::new(None)).collect();
     let next = AtomicUsize::new(0);
-    let finished = AtomicUsize::new(0);
-    let progress = Progress(std::io::stderr().is_terminal());
+    // Progress on a terminal only (crate::progress); the runs' own bars stay hidden.
+    let task = crate::progress::Task::start_outer("certify: runs", todo.len() as u64);
     let workers = rayon::current_num_threads().clamp(1, todo.len().max(1));
     std::thread::scope(|scope| {
         for _ in 0..workers {
@@ -346,13 +345,12 @@ fn certify_all(planned: &[Planned], args: &CertifyArgs) -> Vec<Line> {
                     if let Ok(mut slot) = slots[i].lock() {
                         *slot = Some(r);
                     }
-                    let k = finished.fetch_add(1, Ordering::Relaxed) + 1;
-                    progress.say(&format!("{k} of {} runs done", todo.len()));
+                    task.inc(1);
                 }
             });
         }
     });
-    progress.done();
+    drop(task);
     planned
         .iter()
         .zip(slots)

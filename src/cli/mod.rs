@@ -66,6 +66,11 @@ pub fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
+    // Progress bars: only on a terminal, never beside JSON output.
+    {
+        use std::io::IsTerminal as _;
+        crate::progress::enable(std::io::stderr().is_terminal() && !cli.command.json());
+    }
     let result = match &cli.command {
         Command::Inspect(a) => inspect::run(a),
         Command::Assemble(a) => assemble::run(a),

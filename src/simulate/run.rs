@@ -514,6 +514,8 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
         let names: Vec<&str> = s.observables.iter().map(|o| o.name.as_str()).collect();
         DeviceTruth::new(&s.noise.device, n, s.time_unit, &names)
     });
+    // Progress on a terminal only (crate::progress); counts finished realizations.
+    let task = crate::progress::Task::start("simulate: realizations", s.realizations as u64);
     let results: Vec<RealizationResult> = if let Some(truth) = &device {
         // Device errors: density matrices (docs/simulator.md, "Device errors"); the scenario
         // reader has refused noise redrawn every shot and a preparation_error key here.
@@ -529,6 +531,7 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
         (0..s.realizations)
             .into_par_iter()
             .map(|r| setup.realization(r))
+            .inspect(|_| task.inc(1))
             .collect()
     } else if redrawn == Redrawn::EveryShot {
         (0..s.realizations)
@@ -584,6 +587,7 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
                     stats: st,
                 }
             })
+            .inspect(|_| task.inc(1))
             .collect()
     } else {
         // First every realization's draws (noise, then flip patterns), so that the number of
@@ -698,6 +702,7 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
                     stats: st,
                 }
             })
+            .inspect(|_| task.inc(1))
             .collect()
     };
 

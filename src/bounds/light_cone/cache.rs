@@ -136,6 +136,8 @@ impl ExposureCache {
             self.key = Some(key);
         }
         let t_max = max_time(times);
+        // Progress on a terminal only (crate::progress): regions built, then walk sums.
+        let task = crate::progress::Task::start("light-cone regions", supports.len() as u64);
         let regions: Vec<Result<(Region, u64), Unavailable>> = supports
             .par_iter()
             .with_min_len(8)
@@ -145,7 +147,9 @@ impl ExposureCache {
                     (r, h)
                 })
             })
+            .inspect(|_| task.inc(1))
             .collect();
+        drop(task);
         // Match in the order given: kept shapes first, then shapes new in this batch.
         let mut fresh: HashMap<u64, Vec<usize>> = HashMap::new();
         let mut new_shapes: Vec<usize> = Vec::new();
@@ -184,6 +188,7 @@ impl ExposureCache {
             }
         }
         let q = graph.growth;
+        let task = crate::progress::Task::start("light-cone walk sums", new_shapes.len() as u64);
         let computed: Vec<Arc<Values>> = new_shapes
             .par_iter()
             .map(|&a| match &regions[a] {
@@ -194,7 +199,9 @@ impl ExposureCache {
                     order: 0,
                 }),
             })
+            .inspect(|_| task.inc(1))
             .collect();
+        drop(task);
         // Keep the new shapes for later batches, within the budget.
         for (p, &a) in new_shapes.iter().enumerate() {
             if let Ok((region, h)) = &regions[a] {

@@ -173,6 +173,8 @@ pub fn local_bounds_with(inp: &LocalInputs, exposure: &Exposure) -> Vec<LocalTer
     let n = c.sources.len();
     // ln φ per distinct source data, recomputed per time.
     let (class_of, reps) = classes(&c.sources);
+    // Progress on a terminal only (crate::progress): times done.
+    let task = crate::progress::Task::start("local bounds: times", inp.times.len() as u64);
     // Each time on its own (in parallel), collected in time order.
     inp.times
         .par_iter()
@@ -188,6 +190,7 @@ pub fn local_bounds_with(inp: &LocalInputs, exposure: &Exposure) -> Vec<LocalTer
             }
             point_terms(inp, t, &c, &sens, &class_of, &reps, BiasSet::Nearest)
         })
+        .inspect(|_| task.inc(1))
         .collect()
 }
 

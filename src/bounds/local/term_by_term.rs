@@ -240,6 +240,8 @@ pub(super) fn term_bounds_from(
     // Per time (in parallel; each time on its own): the sources in instance order, then
     // reordered for the bias prefixes. The order is a strict total order (ties by instance
     // index), so it does not depend on where the sort starts.
+    // Progress on a terminal only (crate::progress): times done.
+    let task = crate::progress::Task::start("sums term by term: times", inp.times.len() as u64);
     let per_time: Vec<(LocalTerms, [usize; 3])> = inp
         .times
         .par_iter()
@@ -303,7 +305,9 @@ pub(super) fn term_bounds_from(
             let point = point_terms(inp, t, &c, &sorted, &class_of, &reps, BiasSet::Largest);
             (point, count)
         })
+        .inspect(|_| task.inc(1))
         .collect();
+    drop(task);
     let (points, forms) = per_time.into_iter().unzip();
     Ok(TermByTerm {
         n_terms,
