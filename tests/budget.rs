@@ -329,3 +329,89 @@ fn device_errors_enter_every_answer_and_the_largest_rate_is_the_closed_form() {
     assert_eq!(v["size"]["status"], "not_available");
     assert!(v["size"]["reason"].as_str().unwrap().contains("readout"));
 }
+
+/// `--support`: the light-cone answers agree with `certify` on the same inputs. The example
+/// `chain12` (12 sites, bond norms ≤ 2 MHz, 21 times × 3 observables, 40 realizations of 1000
+/// shots) certified with the model statement alone (`--data-share 0`) gives, for `Z_6` at the
+/// last time, the same E_avg, E_shot and E_1 as budget planning that point (to 1e-8; in fact
+/// bit for bit, since both run the same evaluator). Then the planned scale, written into the
+/// record and certified, reaches the target at that time.
+#[test]
+fn the_light_cone_answers_agree_with_certify_on_the_same_inputs() {
+    let dir = scratch();
+    let example = repo().join("example_runs/chain12");
+    std::fs::copy(example.join("run.h5"), dir.path().join("run.h5")).unwrap();
+    let text = std::fs::read_to_string(example.join("noise.json")).unwrap();
+    std::fs::write(dir.path().join("noise.json"), &text).unwrap();
+    let certify = |name: &str| {
+        quassay()
+            .current_dir(dir.path())
+            .args([
+                "certify",
+                "run.h5",
+                "--noise",
+                "noise.json",
+                "--data-share",
+                "0",
+            ])
+            .args(["-o", name])
+            .assert()
+            .code(0);
+        let cert = crate::util::certified(&dir.path().join(name));
+        let o = crate::util::observable(&cert, "Z_6").clone();
+        let last = |c: &str| *crate::util::numbers(&o[c]).last().unwrap();
+        (last("e_avg"), last("e_shot"), last("e_one"))
+    };
+    let target = 0.3;
+    let b = budget(&[
+        "--lattice",
+        "chain:12",
+        "--target",
+        "0.3",
+        "--time",
+        "1",
+        "--points",
+        "63",
+        "--realizations",
+        "40",
+        "--shots",
+        "1000",
+        "--support",
+        "6",
+        "--bond-norm",
+        "2",
+        "--energy-unit",
+        "MHz",
+    ]);
+    let (e_avg, e_shot, e_one) = certify("recorded.cert.json");
+    let at = &b["local"]["at_point"];
+    for (ours, theirs) in [
+        (at["e_avg"].as_f64().unwrap(), e_avg),
+        (at["e_shot"].as_f64().unwrap(), e_shot),
+        (at["e_one"].as_f64().unwrap(), e_one),
+    ] {
+        assert!((ours - theirs).abs() <= 1e-8, "{ours} vs {theirs}");
+    }
+    assert_eq!(b["local"]["light_cone_used_at_point"], true);
+    // The planned scale λ: certified with amplitudes × λ, E_avg + E_shot meets the target.
+    let lambda = b["local"]["scale"]["averaged"]["value"].as_f64().unwrap();
+    let mut record: Value = serde_json::from_str(&text).unwrap();
+    for s in record["sources"].as_array_mut().unwrap() {
+        s["amplitude"] = serde_json::json!(s["amplitude"].as_f64().unwrap() * lambda);
+    }
+    std::fs::write(dir.path().join("noise.json"), record.to_string()).unwrap();
+    let (e_avg, e_shot, _) = certify("scaled.cert.json");
+    assert!(
+        (e_avg + e_shot - target).abs() <= 1e-6 * target,
+        "{} vs {target}",
+        e_avg + e_shot
+    );
+    // Without --bond-norm: a usage error.
+    quassay()
+        .args(["budget", "--noise", "noise.json", "--lattice", "chain:12"])
+        .args(["--time-unit", "us", "--spectrum", "-1,1", "--target", "0.3"])
+        .args(["--time", "1", "--support", "6"])
+        .current_dir(dir.path())
+        .assert()
+        .code(2);
+}

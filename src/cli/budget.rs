@@ -10,6 +10,9 @@
 //! The bounds are the global ones (docs/method.md §3); the search is in [`crate::bounds::planning`].
 //! A record with device sections (version 2) has their global terms (docs/method.md §7) in every
 //! answer, and with an `incoherent` section budget also answers (e) the largest incoherent rate.
+//! With `--support` it answers (f) the same questions for a local observable with the bounds
+//! `certify` computes (light cone and global, the smaller), through the same evaluator
+//! (`budget_local.rs`).
 
 use std::path::PathBuf;
 
@@ -24,9 +27,12 @@ use crate::inputs::noise_record::read_noise_record;
 use crate::model::device::SiteSet;
 use crate::model::lattice::{Boundary, Geometry, Lattice};
 use crate::model::noise::{ActsOn, Amplitude, NoiseRecord};
-use crate::model::units::TimeUnit;
+use crate::model::units::{FrequencyUnit, TimeUnit};
 use crate::numbers::short;
 use crate::{Error, InputKind};
+
+#[path = "budget_local.rs"]
+mod local;
 
 /// Largest number of sites the system-size search goes to.
 const MAX_SITES: usize = 1_000_000;
@@ -72,6 +78,17 @@ pub struct BudgetArgs {
     /// [default: chain 10,100,1000,10000; square 3,10,32,100; cubic 3,5,10,22].
     #[arg(long, value_delimiter = ',', value_parser = at_least_one)]
     pub sizes: Option<Vec<usize>>,
+    /// Sites of a local observable on --lattice (0-based, comma separated): adds the
+    /// light-cone answers, as certify computes them (needs --bond-norm and --energy-unit).
+    #[arg(long, value_delimiter = ',', requires_all = ["bond_norm", "energy_unit"], value_name = "SITES")]
+    pub support: Option<Vec<usize>>,
+    /// The largest norm of one bond term of the target Hamiltonian (as the run file's
+    /// bond_norm_max), in --energy-unit; for --support.
+    #[arg(long, value_parser = nonnegative)]
+    pub bond_norm: Option<f64>,
+    /// The unit of --bond-norm: rad/s, rad/ms, rad/us, rad/ns, Hz, kHz, MHz or GHz.
+    #[arg(long, value_parser = parse_energy_unit)]
+    pub energy_unit: Option<FrequencyUnit>,
     /// Print the answers as JSON.
     #[arg(long)]
     pub json: bool,
@@ -132,6 +149,20 @@ fn parse_spectrum(text: &str) -> Result<[f64; 2], String> {
     } else {
         Err(format!("the minimum {a} must be below the maximum {b}"))
     }
+}
+
+fn nonnegative(text: &str) -> Result<f64, String> {
+    let x = number(text)?;
+    if x >= 0.0 {
+        Ok(x)
+    } else {
+        Err(format!("{x} must be at least 0"))
+    }
+}
+
+fn parse_energy_unit(text: &str) -> Result<FrequencyUnit, String> {
+    FrequencyUnit::parse(text)
+        .ok_or_else(|| format!("'{text}' is not one of {}", FrequencyUnit::accepted()))
 }
 
 fn positive(text: &str) -> Result<f64, String> {
@@ -455,6 +486,12 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
         }));
     }
 
+    // (f) the light-cone answers for a local observable.
+    let local = match &args.support {
+        Some(sites) => Some(local_answers(args, &prob, &shape, sites, resize.is_none())?),
+        None => None,
+    };
+
     let shot = planning::shot_term(&set);
     let unit = args.time_unit.as_str();
     let text = if args.json {
@@ -496,11 +533,14 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
         if !prob.record.device.is_empty() {
             j["device_errors"] = device_json(&set, t, unit, rates.as_deref());
         }
+        if let Some(l) = &local {
+            j["local"] = local_json(l);
+        }
         let mut s = serde_json::to_string_pretty(&j).unwrap_or_default();
         s.push('\n');
         s
     } else {
-        render_text(
+        let mut text = render_text(
             args,
             &prob,
             &sources,
@@ -513,7 +553,11 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
             &slopes,
             &set,
             rates.as_deref(),
-        )
+        );
+        if let Some(l) = &local {
+            local_text(&mut text, l, t, unit);
+        }
+        text
     };
     print_stdout(&text)?;
     Ok(Outcome::Success)
@@ -731,4 +775,149 @@ fn render_text(
          its share of the failure probability (certify --data-share).\n",
     );
     s
+}
+
+/// The light-cone answers for `--support` (docs/budget.md, "Local observables").
+struct LocalAnswers {
+    sites: Vec<usize>,
+    /// `s_O`: a bound this large is vacuous.
+    spread: f64,
+    /// At the planned point: the terms, and whether the light cone was computed.
+    at_point: crate::bounds::global::PointBounds,
+    light_cone: String,
+    light_cone_used: bool,
+    scale: [Answer; 2],
+    time: [Answer; 2],
+    size: Option<[Answer; 2]>,
+}
+
+fn local_answers(
+    args: &BudgetArgs,
+    prob: &Problem,
+    shape: &[usize],
+    sites: &[usize],
+    resizable: bool,
+) -> crate::Result<LocalAnswers> {
+    let n: usize = shape.iter().product();
+    let raw: Vec<i128> = sites.iter().map(|&s| s as i128).collect();
+    let support = crate::inputs::run_file::checks::check_support(&raw, Some(n))
+        .map_err(|m| Error::Options(format!("--support: {m}")))?;
+    if support.is_empty() {
+        return Err(Error::Options(
+            "--support: give at least one site (a global observable needs no --support)".into(),
+        ));
+    }
+    let plan = local::LocalPlan {
+        prob,
+        shape,
+        support: &support,
+        bond_norm: args.bond_norm.unwrap_or(0.0),
+        energy_unit: args.energy_unit.unwrap_or(FrequencyUnit::RadPerUs),
+        spectrum: args.spectrum,
+        realizations: args.realizations,
+        shots: args.shots,
+        confidence: args.confidence,
+        points: args.points,
+    };
+    let (t, target) = (args.time, args.target);
+    let at = plan.point(shape, &support, 1.0, t)?;
+    let used = matches!(
+        at.light_cone,
+        crate::bounds::run_bounds::LightCone::Computed { .. }
+    ) && at.bounds.e_avg < plan_global_e_avg(&plan, shape, t)?;
+    let w = [Which::Averaged, Which::Single];
+    Ok(LocalAnswers {
+        light_cone: at.light_cone.describe(),
+        light_cone_used: used,
+        at_point: at.bounds,
+        scale: w.map(|w| plan.largest_scale(t, target, w)),
+        time: w.map(|w| plan.longest_time(t, target, w)),
+        size: resizable.then(|| w.map(|w| plan.largest_side(t, target, w, prob.min_side()))),
+        sites: support,
+        spread: args.spectrum[1] - args.spectrum[0],
+    })
+}
+
+/// `E_avg` of the global statement at the planned point (to say which statement is used):
+/// what the evaluator gives for a global observable (empty support) of the same spread.
+fn plan_global_e_avg(plan: &local::LocalPlan, shape: &[usize], t: f64) -> crate::Result<f64> {
+    Ok(plan.point(shape, &[], 1.0, t)?.bounds.e_avg)
+}
+
+fn local_json(l: &LocalAnswers) -> Value {
+    let by =
+        |v: &[Answer; 2]| json!({ "averaged": answer_json(v[0]), "single": answer_json(v[1]) });
+    let p = &l.at_point;
+    json!({
+        "support": l.sites,
+        "errors": {
+            "averaged": "half_width: e_avg + e_shot + device terms, the smaller of the light-cone and global statements, as certify (docs/method.md §5)",
+            "single": "e_one, one noisy evolution, likewise",
+        },
+        "light_cone": l.light_cone,
+        "light_cone_used_at_point": l.light_cone_used,
+        "at_point": { "e_avg": finite(p.e_avg), "e_shot": finite(p.e_shot),
+                      "half_width": finite(p.half_width), "e_one": finite(p.e_one),
+                      "e_wc": finite(p.e_wc) },
+        "scale": by(&l.scale),
+        "time_limit": by(&l.time),
+        "size": match &l.size {
+            Some(v) => by(v),
+            None => json!({ "status": "not_available", "reason": "the record lists sites" }),
+        },
+    })
+}
+
+fn local_text(s: &mut String, l: &LocalAnswers, t: f64, unit: &str) {
+    let sites: Vec<String> = l.sites.iter().map(|x| x.to_string()).collect();
+    let p = &l.at_point;
+    let vacuous = |x: f64| {
+        if x >= l.spread {
+            "vacuous".to_string()
+        } else {
+            show(x)
+        }
+    };
+    s.push_str(&format!(
+        "\n(f) a local observable on sites [{}]: the smaller of the light-cone and global \
+         statements at each point, as certify uses them (docs/method.md section 5)\n",
+        sites.join(", ")
+    ));
+    s.push_str(&format!(
+        "  at t = {} {unit}: E_avg {}, E_shot {}, half-width {}, E_1 {}; the light-cone \
+         statement is {}\n",
+        show(t),
+        vacuous(p.e_avg),
+        show(p.e_shot),
+        vacuous(p.half_width),
+        vacuous(p.e_one),
+        if l.light_cone_used {
+            "the smaller here"
+        } else {
+            "not the smaller here (the global one is used)"
+        }
+    ));
+    s.push_str(&format!(
+        "  {:<34} {:>14} {:>14}\n",
+        "question", "averaged", "single (E_1)"
+    ));
+    let line = |s: &mut String, q: &str, v: &[Answer; 2], integer: bool| {
+        s.push_str(&format!(
+            "  {q:<34} {:>14} {:>14}\n",
+            show_answer(v[0], integer),
+            show_answer(v[1], integer)
+        ));
+    };
+    line(s, "(a) largest scale factor", &l.scale, false);
+    line(s, &format!("(b) longest time ({unit})"), &l.time, false);
+    match &l.size {
+        Some(v) => line(s, "(c) largest side, support at centre", v, true),
+        None => s.push_str("  (c) largest side: not available, the record lists sites\n"),
+    }
+    s.push_str(
+        "  (c) is searched as for the global answers: the light-cone statement's tail term \
+         covers the noise sources outside the cone and grows with their number; \"unlimited\" \
+         means the search's largest side was reached. vacuous: the bound reaches the \
+         observable's range.\n",
+    );
 }
