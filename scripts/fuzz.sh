@@ -30,7 +30,7 @@ if ! cargo fuzz --version >/dev/null 2>&1; then
     exit 1
 fi
 
-targets=(noise_record scenario certificate canonical_roundtrip)
+targets=(noise_record scenario certificate canonical_roundtrip arrays)
 triple=$(rustc -vV | sed -n 's/^host: //p')
 
 echo "fuzz.sh: building ${targets[*]}"
@@ -46,8 +46,9 @@ trap 'rm -rf "$scratch"' EXIT
 # above 2 GiB are failures too.
 run_one() {
     local t=$1
-    mkdir -p "$scratch/$t" "artifacts/$t"
-    "$bin/$t" "$scratch/$t" "corpus/$t" \
+    mkdir -p "$scratch/$t" "artifacts/$t" "$scratch/tmp-$t"
+    # TMPDIR: a target's own scratch files (the `arrays` target's) go with the scratch folder.
+    TMPDIR="$scratch/tmp-$t" "$bin/$t" "$scratch/$t" "corpus/$t" \
         -max_total_time="$secs" -timeout=10 -rss_limit_mb=2048 -malloc_limit_mb=2048 \
         -dict="dict/$t.dict" -artifact_prefix="artifacts/$t/" -print_final_stats=1 \
         >"$scratch/$t.log" 2>&1

@@ -144,6 +144,16 @@ fn observable_line(o: &ObservableSummary) -> String {
     let mut parts = vec![o.name.clone()];
     parts.push(match &o.support {
         Some(v) if v.is_empty() => "global".to_string(),
+        // A long support (a magnetisation of 10^4 sites) is shortened for people; --json
+        // lists every site.
+        Some(v) if v.len() > 16 => format!(
+            "{} sites ({}, {}, {}, ..., {})",
+            v.len(),
+            v[0],
+            v[1],
+            v[2],
+            v[v.len() - 1]
+        ),
         Some(v) => format!("sites {v:?}"),
         None => "support invalid (see problems)".to_string(),
     });

@@ -97,7 +97,7 @@ pub fn read_description(path: &Path) -> crate::Result<Assembled> {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    assemble_from_value(&value, &dir).map_err(|p| fail(fix_root(p)))
+    assemble_from_value(&value, &dir).map_err(fail)
 }
 
 /// Checks a parsed description; arrays named by file are read relative to `dir`.
@@ -117,7 +117,7 @@ pub fn assemble_from_value(value: &Value, dir: &Path) -> Result<Assembled, Vec<P
             all_float32: a.all_float32,
             files: a.files,
         }),
-        _ => Err(a.rd.problems),
+        _ => Err(fix_root(a.rd.problems)),
     }
 }
 
