@@ -821,14 +821,10 @@ fn local_answers(
     };
     let (t, target) = (args.time, args.target);
     let at = plan.point(shape, &support, 1.0, t)?;
-    let used = matches!(
-        at.light_cone,
-        crate::bounds::run_bounds::LightCone::Computed { .. }
-    ) && at.bounds.e_avg < plan_global_e_avg(&plan, shape, t)?;
     let w = [Which::Averaged, Which::Single];
     Ok(LocalAnswers {
         light_cone: at.light_cone.describe(),
-        light_cone_used: used,
+        light_cone_used: at.light_cone_used,
         at_point: at.bounds,
         scale: w.map(|w| plan.largest_scale(t, target, w)),
         time: w.map(|w| plan.longest_time(t, target, w)),
@@ -836,12 +832,6 @@ fn local_answers(
         sites: support,
         spread: args.spectrum[1] - args.spectrum[0],
     })
-}
-
-/// `E_avg` of the global statement at the planned point (to say which statement is used):
-/// what the evaluator gives for a global observable (empty support) of the same spread.
-fn plan_global_e_avg(plan: &local::LocalPlan, shape: &[usize], t: f64) -> crate::Result<f64> {
-    Ok(plan.point(shape, &[], 1.0, t)?.bounds.e_avg)
 }
 
 fn local_json(l: &LocalAnswers) -> Value {

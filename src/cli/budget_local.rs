@@ -15,6 +15,7 @@
 
 use crate::bounds::confidence::Simultaneity;
 use crate::bounds::global::PointBounds;
+use crate::bounds::local::Statement;
 use crate::bounds::planning::{self, Answer, Which};
 use crate::bounds::run_bounds::{LightCone, RunEvaluator, RunGeometry};
 use crate::model::lattice::Lattice;
@@ -40,10 +41,12 @@ pub(super) struct LocalPlan<'a> {
     pub points: usize,
 }
 
-/// One evaluated point: the terms and whether the light-cone statement was computed.
+/// One evaluated point: the terms, whether the light-cone statement was computed, and
+/// whether it is the one used there (the smaller).
 pub(super) struct LocalPoint {
     pub bounds: PointBounds,
     pub light_cone: LightCone,
+    pub light_cone_used: bool,
 }
 
 /// The largest side the system-size search tries for a local observable.
@@ -112,6 +115,10 @@ impl LocalPlan<'_> {
         };
         let s_o = self.spectrum[1] - self.spectrum[0];
         let o = ev.observable("planned", s_o, support, None, &sums);
+        let light_cone_used = o
+            .statements
+            .first()
+            .is_some_and(|s| *s != Statement::Global);
         let bounds = o
             .points
             .into_iter()
@@ -120,6 +127,7 @@ impl LocalPlan<'_> {
         Ok(LocalPoint {
             bounds,
             light_cone: o.light_cone,
+            light_cone_used,
         })
     }
 

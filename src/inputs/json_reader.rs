@@ -116,6 +116,18 @@ impl Reader {
     }
 }
 
+/// The problem of a file that is not JSON: at `/`, with serde_json's line and column.
+pub(crate) fn syntax_problem(e: &serde_json::Error) -> Problem {
+    Problem::new(
+        "/",
+        format!(
+            "is not valid JSON (line {}, column {}: {e}); fix the syntax",
+            e.line(),
+            e.column()
+        ),
+    )
+}
+
 /// JSON-pointer escaping of one reference token (RFC 6901).
 pub(crate) fn escape(key: &str) -> String {
     key.replace('~', "~0").replace('/', "~1")

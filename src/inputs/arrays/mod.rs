@@ -17,7 +17,7 @@ use ndarray::{Array2, ArrayD, Ix1, Ix2};
 use serde_json::{Map, Value};
 
 use crate::error::{Error, InputKind, Problem};
-use crate::inputs::json_reader::{escape, fix_root, Reader};
+use crate::inputs::json_reader::{escape, fix_root, syntax_problem, Reader};
 use crate::inputs::run_file::checks;
 use crate::model::{
     Boundary, FrequencyUnit, Geometry, Hamiltonian, Lattice, Observable, Run, Shots, Terms,
@@ -83,16 +83,8 @@ pub fn read_description(path: &Path) -> crate::Result<Assembled> {
         file: path.to_path_buf(),
         problems,
     };
-    let value: Value = serde_json::from_slice(&bytes).map_err(|e| {
-        fail(vec![Problem::new(
-            "/",
-            format!(
-                "is not valid JSON (line {}, column {}: {e}); fix the syntax",
-                e.line(),
-                e.column()
-            ),
-        )])
-    })?;
+    let value: Value =
+        serde_json::from_slice(&bytes).map_err(|e| fail(vec![syntax_problem(&e)]))?;
     let dir = match path.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),

@@ -62,16 +62,8 @@ pub fn read_scenario(path: &Path) -> crate::Result<Scenario> {
 
 /// Checks a scenario given as text.
 pub fn parse_scenario(text: &str) -> Result<Scenario, Vec<Problem>> {
-    let value: Value = serde_json::from_str(text).map_err(|e| {
-        vec![Problem::new(
-            "/",
-            format!(
-                "is not valid JSON (line {}, column {}: {e}); fix the syntax",
-                e.line(),
-                e.column()
-            ),
-        )]
-    })?;
+    let value: Value = serde_json::from_str(text)
+        .map_err(|e| vec![crate::inputs::json_reader::syntax_problem(&e)])?;
     scenario_from_value(&value)
 }
 
