@@ -170,7 +170,7 @@ impl LocalPlan<'_> {
         planning::largest_integer(
             |l| {
                 let shape = vec![l; d];
-                match place(&shape, &extent_vec(extent, d), &offsets) {
+                match place(&shape, &vec![extent; d], &offsets) {
                     Some(sites) => self.error(&shape, &sites, 1.0, t, w),
                     None => f64::INFINITY,
                 }
@@ -204,10 +204,6 @@ impl LocalPlan<'_> {
             .map_or(1, |m| m + 1);
         (extent, offsets)
     }
-}
-
-fn extent_vec(extent: usize, d: usize) -> Vec<usize> {
-    vec![extent; d]
 }
 
 /// Row-major coordinates of `site` on `shape`.

@@ -120,6 +120,14 @@ struct Assembler {
     all_float32: bool,
 }
 
+/// How a float array was stored: the relative rounding of its type (0 for float64, integers
+/// and inline numbers; 2^-24 for float32) and whether it was float32.
+#[derive(Debug, Clone, Copy)]
+struct Stored {
+    rounding: f64,
+    float32: bool,
+}
+
 /// An array with the words that name it in messages.
 struct Named<T> {
     data: ArrayD<T>,
@@ -245,35 +253,35 @@ impl Assembler {
     }
 
     /// A float array, from a file or inline.
-    fn floats(&mut self, v: &Value, path: &str) -> Option<(Named<f64>, FloatArray)> {
+    fn floats(&mut self, v: &Value, path: &str) -> Option<(Named<f64>, Stored)> {
         match self.source(v, path)? {
             Some(src) => match read_floats(&src) {
-                Ok(a) => Some((
+                Ok(FloatArray {
+                    data,
+                    rounding,
+                    float32,
+                }) => Some((
                     Named {
-                        data: a.data.clone(),
+                        data,
                         what: src.describe(),
                     },
-                    a,
+                    Stored { rounding, float32 },
                 )),
                 Err(m) => {
                     self.rd.push(path, m);
                     None
                 }
             },
-            None => {
-                let data = inline(v, path, &mut self.rd, |x| x.as_f64())?;
-                Some((
-                    Named {
-                        data: data.clone(),
-                        what: "the inline array".into(),
-                    },
-                    FloatArray {
-                        data,
-                        rounding: 0.0,
-                        float32: false,
-                    },
-                ))
-            }
+            None => Some((
+                Named {
+                    data: inline(v, path, &mut self.rd, |x| x.as_f64())?,
+                    what: "the inline array".into(),
+                },
+                Stored {
+                    rounding: 0.0,
+                    float32: false,
+                },
+            )),
         }
     }
 
