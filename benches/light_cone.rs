@@ -31,6 +31,7 @@ fn main() {
             family: Family::Uniform,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         })
         .collect();
     for (e, &[a, b]) in l.bonds().iter().enumerate() {
@@ -42,6 +43,7 @@ fn main() {
             family: Family::TwoPoint,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         });
     }
     let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();

@@ -56,6 +56,7 @@ fn case(
             family: Family::Uniform,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         })
         .collect();
     for (e, &[a, b]) in lattice.bonds().iter().enumerate() {
@@ -67,6 +68,7 @@ fn case(
             family: Family::TwoPoint,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         });
     }
     let noise = NoiseModel {
@@ -184,6 +186,7 @@ fn dump() {
                 family: Family::Uniform,
                 mean_offset: 0.1,
                 mean_offset_uncertainty: 0.0,
+                correlation_time: None,
             })
             .collect();
         for (e, &[a, b]) in lattice.bonds().iter().enumerate() {
@@ -195,6 +198,7 @@ fn dump() {
                 family: Family::TwoPoint,
                 mean_offset: 0.0,
                 mean_offset_uncertainty: 0.0,
+                correlation_time: None,
             });
         }
         let graph = WalkGraph::new(&lattice, &vec![1.0; lattice.n_bonds()], 1, &instances).unwrap();

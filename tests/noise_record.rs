@@ -148,6 +148,31 @@ const INVALID: &[(&str, &str, &str)] = &[
         "must be a string",
     ),
     (
+        "correlation-time-in-version-1.json",
+        "/sources/0/correlation_time",
+        "is a key of format version 3",
+    ),
+    (
+        "correlation-time-in-version-2.json",
+        "/sources/0/correlation_time",
+        "is a key of format version 3",
+    ),
+    (
+        "correlation-time-missing-unit.json",
+        "/sources/0/correlation_time",
+        "the required key `unit` is missing",
+    ),
+    (
+        "correlation-time-negative.json",
+        "/sources/0/correlation_time/value",
+        "must be > 0",
+    ),
+    (
+        "correlation-time-zero.json",
+        "/sources/0/correlation_time/value",
+        "must be > 0",
+    ),
+    (
         "device-empty-applies-to.json",
         "/readout/applies_to",
         "is empty",
@@ -288,7 +313,7 @@ const INVALID: &[(&str, &str, &str)] = &[
     (
         "wrong-version.json",
         "/format_version",
-        "version 3 is not supported",
+        "version 4 is not supported",
     ),
 ];
 

@@ -96,6 +96,7 @@ fn source_from(f: Family, delta: f64, m: f64) -> SourceData {
         constants: quassay::bounds::family::constants(&f),
         delta,
         systematic: m,
+        window: None,
     }
 }
 
@@ -488,6 +489,7 @@ fn cone() -> impl Strategy<Value = Cone> {
                     family,
                     mean_offset: mu,
                     mean_offset_uncertainty: u,
+                    correlation_time: None,
                 };
                 if bond {
                     for (e, &[a, b]) in lattice.bonds().iter().enumerate() {

@@ -22,3 +22,4 @@ mod run_file;
 mod simulate;
 mod snapshots;
 mod sums;
+mod windowed_noise;

@@ -8,7 +8,8 @@
 //! (an extension of docs/method.md §4 by the same argument as the mixed route of §3,
 //! docs/method.md §4; the only route where neither G nor D applies to every source, and a
 //! candidate beside them otherwise), the smallest kept. Worst case
-//! `D_wc = t Σ δ_i (b_i + m_i)`. Sums are over non-negative terms in instance order.
+//! `D_wc = t Σ δ_i (b_i + m_i)`. Sums are over non-negative terms in instance order. A source
+//! drawn again every `τ < t` enters the fluctuation sums with `δ_i √(Σ_w ℓ_w²)/t`.
 
 use super::global::{FluctuationRoute, SourceData};
 
@@ -54,6 +55,13 @@ pub fn fidelity_bound(sources: &[SourceData], t: f64, p: f64) -> FidelityBound {
         sys += d * s.systematic;
         var += (d * c.sigma) * (d * c.sigma);
         wc += d * (c.b + s.systematic);
+        // A source drawn again every τ < t: `D'` moves by at most `δ ℓ_w` per window, so the
+        // sums of squares take `δ √(Σ_w ℓ_w²)/t` in place of `δ` (docs/method.md §4).
+        let d = if s.windowed_at(t) {
+            d * (super::windows::quadratic_time(s.window, t) / t)
+        } else {
+            d
+        };
         match c.kappa {
             Some(k) => k2 += (d * k) * (d * k),
             None => all_kappa = false,
@@ -144,6 +152,7 @@ mod tests {
             constants: crate::bounds::family::constants(&f),
             delta: 0.3,
             systematic: 0.0,
+            window: None,
         };
         let b = fidelity_bound(&[s], 0.0, 0.01);
         assert_eq!((b.d_wc, b.d_p, b.f_low, b.vacuous), (0.0, 0.0, 1.0, false));
@@ -159,6 +168,7 @@ mod tests {
             constants: family::constants(&f),
             delta,
             systematic: 0.0,
+            window: None,
         }
     }
 

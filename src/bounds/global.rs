@@ -23,6 +23,9 @@ pub struct SourceData {
     pub delta: f64,
     /// `m_i = |μ_i| + u_i`.
     pub systematic: f64,
+    /// The correlation time τ (run's unit) of noise drawn again during an evolution; `None`:
+    /// one draw per evolution ([`super::windows`]).
+    pub window: Option<f64>,
 }
 
 impl SourceData {
@@ -33,8 +36,36 @@ impl SourceData {
             constants: family::constants(&i.family),
             delta: i.delta,
             systematic: i.systematic(),
+            window: i.correlation_time,
         }
     }
+
+    /// Whether this source is drawn again during `[0, t]` (`τ < t`).
+    pub fn windowed_at(&self, t: f64) -> bool {
+        self.window.is_some_and(|tau| tau < t)
+    }
+}
+
+/// The sensitivities to use in the sums of squares (routes G, D, mixed and the Efron–Stein
+/// variance) at time `t`: `sens` itself when no source is drawn again during `[0, t]`, else
+/// each windowed source's [`super::windows::fluctuation_sensitivity`] (docs/method.md §3,
+/// "Windows"). `sens` are the linear sensitivities (a bound on `Σ_w |∂f/∂g_w|/δ`).
+pub fn fluctuation_sensitivities<'a>(
+    sources: &[SourceData],
+    sens: &'a [f64],
+    s_o: f64,
+    t: f64,
+) -> std::borrow::Cow<'a, [f64]> {
+    if !sources.iter().any(|s| s.windowed_at(t)) {
+        return std::borrow::Cow::Borrowed(sens);
+    }
+    std::borrow::Cow::Owned(
+        sources
+            .iter()
+            .zip(sens)
+            .map(|(s, &e)| super::windows::fluctuation_sensitivity(e, s_o, s.window, t))
+            .collect(),
+    )
 }
 
 /// The route that gave a fluctuation term (docs/method.md §3).
@@ -122,9 +153,20 @@ pub fn bias_ln_sum(sources: &[SourceData], t: f64) -> f64 {
     // site) reuse the last value of ln φ; the value and the order of summation are unchanged,
     // only the quadrature of a truncated normal is not repeated.
     let mut last: Option<(Family, f64, f64)> = None;
+    let mut last_windowed: Option<(Family, f64, f64, f64)> = None;
     for s in sources {
         let y = 2.0 * t * s.delta;
-        if y > 0.0 {
+        if y > 0.0 && s.windowed_at(t) {
+            // Windows: Σ_w ln φ(2δℓ_w) (docs/method.md §3, "Windows"), reused along runs of
+            // equal (family, δ, τ) as below.
+            let tau = s.window.unwrap_or(t);
+            let v = match last_windowed {
+                Some((f, d, lt, v)) if f == s.family && d == s.delta && lt == tau => v,
+                _ => super::windows::ln_phi(&s.family, s.delta, Some(tau), t),
+            };
+            last_windowed = Some((s.family, s.delta, tau, v));
+            ln_sum += v;
+        } else if y > 0.0 {
             let v = match last {
                 Some((f, ly, v)) if f == s.family && ly == y => v,
                 _ => family::ln_phi(&s.family, y),
@@ -447,6 +489,7 @@ pub fn evaluate_point(inp: &PointInputs) -> PointBounds {
     let e_wc = worst_case(inp.sources, sens);
     let e_sys = systematic(inp.sources, sens);
     let e_bias = bias_global(inp.sources, inp.s_o, inp.t);
+    let sens = &*fluctuation_sensitivities(inp.sources, sens, inp.s_o, inp.t);
     let one = fluctuation(inp.sources, sens, inp.p_single);
     let e_one = cap(inp.s_o, e_wc, e_sys + e_bias + one.value);
     let (fluct, route) = match inp.redrawn {
@@ -496,6 +539,7 @@ mod tests {
             constants: family::constants(&Family::Uniform),
             delta,
             systematic: 0.0,
+            window: None,
         }
     }
 
@@ -505,6 +549,7 @@ mod tests {
             constants: family::constants(&f),
             delta,
             systematic: m,
+            window: None,
         }
     }
 

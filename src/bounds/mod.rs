@@ -12,7 +12,9 @@
 //! * [`light_cone`]: Lieb–Robinson walk sums and exposure times `T_i(t)` (§5);
 //! * [`local`]: the light-cone versions of the §3 terms for one observable over all times (§5);
 //! * [`quantiles`]: standard-normal quantiles;
-//! * [`special`]: the error function and the normal tail, accurate to a few ulps.
+//! * [`special`]: the error function and the normal tail, accurate to a few ulps;
+//! * [`windows`]: noise drawn again during an evolution (correlation times): window lengths,
+//!   sums of squares and the bias factor per source.
 
 pub mod confidence;
 pub mod data_interval;
@@ -27,3 +29,4 @@ pub mod planning;
 pub mod quantiles;
 pub mod run_bounds;
 pub mod special;
+pub mod windows;

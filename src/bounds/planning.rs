@@ -348,6 +348,7 @@ mod tests {
                 constants: family::constants(&Family::Uniform),
                 delta,
                 systematic: 0.0,
+                window: None,
             };
             n
         ]

@@ -22,6 +22,25 @@ use crate::model::{NoiseModel, NoiseRecord};
 pub const FORMAT: &str = "quassay-certificate";
 /// The format version of certificates.
 pub const FORMAT_VERSION: u64 = 1;
+/// The `format_minor` of a body whose noise record declares correlation times (format 1.4,
+/// docs/certificate.md).
+pub const FORMAT_MINOR_WINDOWS: u64 = 4;
+
+/// A source's time model in the certificate (format 1.4): `static` (one draw per evolution),
+/// or `windows` with τ as the record gives it and in the run's time unit.
+fn time_model_json(
+    s: &crate::model::noise::NoiseSource,
+    run_unit: crate::model::units::TimeUnit,
+) -> Value {
+    match s.correlation_time {
+        None => json!({ "kind": "static" }),
+        Some((tau, unit)) => json!({
+            "kind": "windows",
+            "correlation_time": { "value": num(tau), "unit": unit.as_str() },
+            "correlation_time_run_unit": num(tau * unit.factor_to(run_unit)),
+        }),
+    }
+}
 
 /// The options a certificate is computed with; recorded in the body, reused by `verify`.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -192,6 +211,35 @@ pub fn build_body(
         body["claim"]["device_errors"] = json!(
             "e_one and e_avg include e_device = e_incoherent + e_preparation + e_readout of each \
              observable (deterministic, no share of epsilon; docs/method.md §7)"
+        );
+    }
+    // Format 1.4: sources drawn again during an evolution (record version 3, docs/method.md
+    // §1): every source states its time model; the assumptions and gaps say what it covers.
+    if record.sources.iter().any(|s| s.correlation_time.is_some()) {
+        body["format_minor"] = json!(FORMAT_MINOR_WINDOWS);
+        body["noise"]["format_version"] = json!(record.format_version);
+        if let Value::Array(a) = &mut body["noise"]["sources"] {
+            for (v, s) in a.iter_mut().zip(&record.sources) {
+                v["time_model"] = time_model_json(s, run.time_unit);
+            }
+        }
+        if let Value::Array(a) = &mut body["assumptions"] {
+            if let Some(first) = a.first_mut() {
+                *first = json!(claim::WINDOWED_HAMILTONIAN);
+            }
+            a.push(json!(claim::WINDOWS_ASSUMPTION));
+        }
+        if let Value::Array(a) = &mut body["not_covered"] {
+            for x in a.iter_mut() {
+                if x.as_str() == Some(claim::TIME_DEPENDENCE_GAP) {
+                    *x = json!(claim::WINDOWED_TIME_DEPENDENCE_GAP);
+                }
+            }
+        }
+        body["claim"]["time_model"] = json!(
+            "sources with a correlation_time are constant on the windows [k tau, (k+1) tau) \
+             from the start of each evolution and drawn independently in each; every \
+             (instance, window) pair is a source of its own (docs/method.md §1, §3)"
         );
     }
     // The three large members are moved in: `json!` would serialise (copy) them, doubling the

@@ -69,13 +69,26 @@ pub fn disjoint_sentence(time_indices: &[usize]) -> String {
     )
 }
 
+/// The gap about time dependence in [`not_covered`] (and the device list's).
+pub const TIME_DEPENDENCE_GAP: &str =
+    "Noise that is correlated between sources, or that varies during one evolution.";
+
+/// The same gap when the record declares correlation times (format 1.4).
+pub const WINDOWED_TIME_DEPENDENCE_GAP: &str = "Noise that is correlated between sources or between windows, and time dependence within one evolution other than the declared windows (continuous drifts, window edges not at multiples of the correlation time from the start of the evolution, and any variation of a source without a correlation_time).";
+
+/// The first assumption when the record declares correlation times (format 1.4).
+pub const WINDOWED_HAMILTONIAN: &str = "The hardware evolves under the target Hamiltonian plus the noise record's sources: H(g, s) = H + sum_i delta_i (mu_i + g_i(s)) V_i, where g_i(s) is constant during one evolution for a source without a correlation_time and piecewise constant on the windows [k tau_i, (k+1) tau_i) for a source with one.";
+
+/// The windows' own assumption (format 1.4).
+pub const WINDOWS_ASSUMPTION: &str = "For sources with a correlation_time tau: the windows start at the start of each evolution, the draws of different windows are independent and follow the source's family, and the known offset mu_i is the same in every window.";
+
 /// What the model does not cover, stated in every certificate (docs/method.md §1).
 pub fn not_covered() -> Vec<&'static str> {
     vec![
         "Decoherence and other incoherent (Markovian) errors.",
         "State-preparation and measurement errors.",
         "Leakage out of the modelled Hilbert space.",
-        "Noise that is correlated between sources, or that varies during one evolution.",
+        TIME_DEPENDENCE_GAP,
         "Errors in the target Hamiltonian itself: the interval is for the ideal model's value, not for nature's.",
     ]
 }

@@ -175,7 +175,7 @@ pub fn not_covered(model: &DeviceModel) -> Vec<&'static str> {
     });
     v.extend([
         "Leakage out of the modelled Hilbert space.",
-        "Noise that is correlated between sources, or that varies during one evolution.",
+        super::claim::TIME_DEPENDENCE_GAP,
         "Errors in the target Hamiltonian itself: the interval is for the ideal model's value, not for nature's.",
         "The fidelity bound is for the closed evolution from the intended state: it does not include the device errors.",
     ]);

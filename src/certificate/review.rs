@@ -493,7 +493,7 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
         "The failure probability {} was split by the rule '{}': {} to the noise fluctuation and \
          {} to the shot noise, over {} points with {correction}; one evolution (E_1) gets {} \
          per point.",
-        if body.get("format_minor").is_some() {
+        if split.get("model_statement_total").is_some() {
             format!(
                 "of the model statement, {} of the total {},",
                 p(&split["model_statement_total"]),
@@ -508,7 +508,7 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
         split["points"],
         p(&split["single_evolution_per_point"]),
     ));
-    if body.get("format_minor").is_some() {
+    if split.get("model_statement_total").is_some() {
         claim.push(format!(
             "Two statements are intersected (format 1.{}): the model statement above, at \
              failure probability {} in all, and the data statement, an interval for the mean \

@@ -12,8 +12,8 @@
 use super::columns::ShotSum;
 use crate::bounds::device::add_device;
 use crate::bounds::global::{
-    averaged_fluctuation, bias_from_ln_sum, cap, fluctuation_scale, systematic, worst_case,
-    FluctuationScale, SourceData,
+    averaged_fluctuation, bias_from_ln_sum, cap, fluctuation_scale, fluctuation_sensitivities,
+    systematic, worst_case, FluctuationScale, SourceData,
 };
 use crate::model::noise::Redrawn;
 
@@ -41,8 +41,10 @@ pub struct HalfWidth {
 impl HalfWidth {
     /// The terms at one point with global sensitivities `sens` (`s_O·t` for every source),
     /// `bias_ln_sum` = [`crate::bounds::global::bias_ln_sum`] at this time.
+    #[allow(clippy::too_many_arguments)]
     pub fn new(
         s_o: f64,
+        t: f64,
         sources: &[SourceData],
         sens: &[f64],
         bias_ln_sum: f64,
@@ -57,7 +59,8 @@ impl HalfWidth {
             s_o,
             e_wc,
             sys_bias: e_sys + e_bias,
-            scale: fluctuation_scale(sources, sens),
+            // Windowed sources: their fluctuation sensitivities (docs/method.md §3).
+            scale: fluctuation_scale(sources, &fluctuation_sensitivities(sources, sens, s_o, t)),
             redrawn,
             realizations,
             shots,
@@ -131,6 +134,7 @@ mod tests {
             constants: family::constants(&f),
             delta,
             systematic: m,
+            window: None,
         }
     }
 
@@ -216,7 +220,7 @@ mod tests {
                         (ShotSum::StdErr { sq_sum }, ShotData::StdErr(&se)),
                     ];
                     for (sum, data) in cases {
-                        let hw = HalfWidth::new(2.0, sources, &sens, ln, redrawn, r, sum);
+                        let hw = HalfWidth::new(2.0, t, sources, &sens, ln, redrawn, r, sum);
                         for &eps in &[1.0, 0.3, 1e-3, 1e-12, 1e-300] {
                             let want = reference(2.0, t, sources, redrawn, data, r, eps);
                             assert_eq!(hw.at(eps).to_bits(), want.to_bits(), "t={t} ε={eps}");
@@ -242,6 +246,7 @@ mod tests {
         };
         let hw = HalfWidth::new(
             2.0,
+            1.0,
             &sources,
             &sens,
             bias_ln_sum(&sources, 1.0),

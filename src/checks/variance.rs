@@ -141,6 +141,7 @@ mod tests {
             constants: family::constants(&Family::Uniform),
             delta: 0.2,
             systematic: 0.0,
+            window: None,
         }];
         for &t in &[1e-3, 0.1, 1.0, 3.0, 10.0] {
             let a: f64 = 2.0 * 0.2 * t;

@@ -180,14 +180,66 @@ mod tests {
     fn format_and_version_are_checked() {
         let p = problems_after(|v| {
             v["format"] = json!("quassay-run");
-            v["format_version"] = json!(3);
+            v["format_version"] = json!(4);
         });
         has(&p, "/format", "is `quassay-run`");
-        has(&p, "/format_version", "version 3 is not supported");
+        has(&p, "/format_version", "version 4 is not supported");
         // As in JSON Schema, 1.0 is the integer 1.
         let mut v = example();
         v["format_version"] = json!(1.0);
         assert!(noise_record_from_value(&v).is_ok());
+    }
+
+    #[test]
+    fn a_correlation_time_needs_version_3_a_positive_value_and_a_unit() {
+        use crate::model::units::TimeUnit;
+        let mut v = example();
+        v["format_version"] = json!(3);
+        source(&mut v)["correlation_time"] = json!({"value": 2.5, "unit": "us"});
+        let r = noise_record_from_value(&v).expect("a version 3 record reads");
+        assert_eq!(r.sources[0].correlation_time, Some((2.5, TimeUnit::Us)));
+        assert_eq!(r.format_version, 3);
+        // Version 3 without correlation times reads as version 2 did.
+        let mut plain = example();
+        plain["format_version"] = json!(3);
+        let r = noise_record_from_value(&plain).expect("reads");
+        assert_eq!(r.sources[0].correlation_time, None);
+        for version in [1, 2] {
+            let p = problems_after(|v| {
+                v["format_version"] = json!(version);
+                source(v)["correlation_time"] = json!({"value": 2.5, "unit": "us"});
+            });
+            has(
+                &p,
+                "/sources/0/correlation_time",
+                "is a key of format version 3; set `format_version` to 3",
+            );
+        }
+        for (bad, at, says) in [
+            (json!({"value": 0.0, "unit": "us"}), "/value", "must be > 0"),
+            (
+                json!({"value": -1.0, "unit": "us"}),
+                "/value",
+                "must be > 0",
+            ),
+            (
+                json!({"value": 1.0}),
+                "",
+                "the required key `unit` is missing",
+            ),
+            (
+                json!({"value": 1.0, "unit": "min"}),
+                "/unit",
+                "unknown value `min`",
+            ),
+            (json!(2.0), "", "must be an object"),
+        ] {
+            let p = problems_after(|v| {
+                v["format_version"] = json!(3);
+                source(v)["correlation_time"] = bad.clone();
+            });
+            has(&p, &format!("/sources/0/correlation_time{at}"), says);
+        }
     }
 
     #[test]

@@ -1,4 +1,4 @@
-//! The noise record (format `quassay-noise` v1 and v2) and its expansion into instances.
+//! The noise record (format `quassay-noise` v1, v2 and v3) and its expansion into instances.
 //!
 //! A [`NoiseRecord`] is what the JSON file says, checked but not yet tied to a run. Expanding it
 //! against a run's lattice and time unit gives a [`NoiseModel`]: one [`Instance`] per site, bond
@@ -101,6 +101,11 @@ pub struct NoiseSource {
     pub mean_offset: f64,
     /// Uncertainty u of the offset, in units of the amplitude.
     pub mean_offset_uncertainty: f64,
+    /// Correlation time τ of a source whose draw changes during an evolution (format version
+    /// 3): the noise is constant on the windows `[kτ, (k+1)τ)` from t = 0 and drawn
+    /// independently in each (docs/method.md §1, "Noise that changes during a run"). `None`:
+    /// one draw per evolution.
+    pub correlation_time: Option<(f64, TimeUnit)>,
 }
 
 /// Free-text calibration information, carried into the certificate unchanged.
@@ -118,7 +123,8 @@ pub struct NoiseRecord {
     pub redrawn: Redrawn,
     pub sources: Vec<NoiseSource>,
     pub calibration: Option<Calibration>,
-    /// The record's `format_version` (1, or 2 with device sections allowed).
+    /// The record's `format_version` (1; 2 with device sections allowed; 3 with correlation
+    /// times allowed as well).
     pub format_version: u64,
     /// The device sections (version 2; all absent otherwise).
     pub device: DeviceRecord,
@@ -140,6 +146,9 @@ pub struct Instance {
     pub mean_offset: f64,
     /// u_i (dimensionless, ≥ 0).
     pub mean_offset_uncertainty: f64,
+    /// The correlation time τ in the run's time unit (> 0), or `None` for one draw per
+    /// evolution.
+    pub correlation_time: Option<f64>,
 }
 
 impl Instance {
@@ -205,6 +214,22 @@ impl NoiseRecord {
                 }
             };
             let half = source.half_spread();
+            // τ in the run's unit: the value times an exact power of ten, one rounding.
+            let correlation_time = source
+                .correlation_time
+                .map(|(tau, unit)| tau * unit.factor_to(time_unit));
+            if let Some(tau) = correlation_time {
+                if !(tau.is_finite() && tau > 0.0) {
+                    problems.push(Problem::new(
+                        format!("{path}/correlation_time/value"),
+                        format!(
+                            "gives τ = {tau} {time_unit} in the run's time unit; τ must be \
+                             finite and > 0 there: check the value and its unit"
+                        ),
+                    ));
+                    continue;
+                }
+            }
             for (k, ((support, bond), a)) in supports.into_iter().zip(amplitudes).enumerate() {
                 let delta = self.frequency_unit.to_angular(a, time_unit) * half;
                 if !(delta.is_finite() && delta >= 0.0 && half > 0.0) {
@@ -231,6 +256,7 @@ impl NoiseRecord {
                     family: source.family,
                     mean_offset: source.mean_offset,
                     mean_offset_uncertainty: source.mean_offset_uncertainty,
+                    correlation_time,
                 });
             }
         }
@@ -357,6 +383,7 @@ mod tests {
                 family: Family::Uniform,
                 mean_offset: 0.1,
                 mean_offset_uncertainty: 0.05,
+                correlation_time: None,
             }],
             calibration: None,
             format_version: 1,

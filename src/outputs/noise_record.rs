@@ -1,4 +1,4 @@
-//! Writer for noise records (JSON, format `quassay-noise` v1 and v2), deterministic and
+//! Writer for noise records (JSON, format `quassay-noise` v1, v2 and v3), deterministic and
 //! pretty-printed. A record is written in its own `format_version`; the device sections of
 //! version 2 come after the sources, one entry per line.
 //!
@@ -101,8 +101,16 @@ fn source(out: &mut String, s: &NoiseSource) {
         3,
         "mean_offset_uncertainty",
         &number(s.mean_offset_uncertainty),
-        false,
+        s.correlation_time.is_some(),
     );
+    if let Some((tau, unit)) = s.correlation_time {
+        let value = format!(
+            "{{\"value\": {}, \"unit\": {}}}",
+            number(tau),
+            string(unit.as_str())
+        );
+        line(out, 3, "correlation_time", &value, false);
+    }
     out.push_str("    }");
 }
 
@@ -303,6 +311,7 @@ mod tests {
                 family: Family::Uniform,
                 mean_offset: 0.0,
                 mean_offset_uncertainty: 0.0,
+                correlation_time: None,
             }],
             calibration: Some(Calibration {
                 method: Some("free text".into()),
@@ -358,6 +367,7 @@ mod tests {
             },
             mean_offset: -1.0 / 3.0,
             mean_offset_uncertainty: 5e-324,
+            correlation_time: None,
         });
         r.sources.push(NoiseSource {
             name: "bond".into(),

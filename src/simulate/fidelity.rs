@@ -173,6 +173,7 @@ mod tests {
             amplitude: a,
             mean_offset: mu,
             family: Family::Uniform,
+            correlation_time: None,
         }
     }
 

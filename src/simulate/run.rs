@@ -61,6 +61,9 @@ pub struct TrueInstance {
     /// μ_i.
     pub mean_offset: f64,
     pub family: Family,
+    /// The correlation time τ in the scenario's time unit (the noise is drawn again at every
+    /// multiple of τ during an evolution), or `None` for one draw per evolution.
+    pub correlation_time: Option<f64>,
 }
 
 /// Exact values of one observable.
@@ -389,6 +392,9 @@ pub fn true_instances(s: &Scenario) -> Vec<TrueInstance> {
                 amplitude: unit.to_angular(a, s.time_unit),
                 mean_offset: src.mean_offset,
                 family: src.family,
+                correlation_time: src
+                    .correlation_time
+                    .map(|(tau, unit)| tau * unit.factor_to(s.time_unit)),
             });
         }
     }
@@ -421,6 +427,99 @@ fn trajectory(
     stats.max_norm_drift = stats.max_norm_drift.max(drift);
 }
 
+/// The window edges of the true noise inside `(0, t_max)`: every multiple `kτ` (k ≥ 1) of a
+/// windowed instance's correlation time below `t_max`, in increasing order, with the instances
+/// drawn again there (instance order). Empty when no instance has a correlation time below
+/// `t_max`: then the simulation is exactly the static one.
+pub(super) fn window_edges(inst: &[TrueInstance], t_max: f64) -> Vec<(f64, Vec<usize>)> {
+    let mut edges: BTreeMap<u64, (f64, Vec<usize>)> = BTreeMap::new();
+    for (i, x) in inst.iter().enumerate() {
+        let Some(tau) = x.correlation_time else {
+            continue;
+        };
+        if tau.is_nan() || tau <= 0.0 {
+            continue;
+        }
+        let mut k = 1.0f64;
+        while k * tau < t_max {
+            let t = k * tau;
+            // Non-negative floats order like their bits.
+            edges
+                .entry(t.to_bits())
+                .or_insert((t, Vec::new()))
+                .1
+                .push(i);
+            k += 1.0;
+        }
+    }
+    edges.into_values().collect()
+}
+
+/// The draws at every window edge (edge order, then instance order), from `rng`.
+pub(super) fn draw_windows(
+    rng: &mut impl RngCore,
+    edges: &[(f64, Vec<usize>)],
+    inst: &[TrueInstance],
+) -> Vec<Vec<f64>> {
+    edges
+        .iter()
+        .map(|(_, who)| {
+            who.iter()
+                .map(|&i| sample::draw(rng, &inst[i].family))
+                .collect()
+        })
+        .collect()
+}
+
+/// One evolution under noise that is drawn again at the window edges: `g` holds until the
+/// first edge, then each edge's draws replace their instances' values. Calls `at(k, ψ)` at
+/// every recorded time (a recorded time on an edge sees the state before the new draw acts).
+#[allow(clippy::too_many_arguments)]
+fn windowed_trajectory(
+    base: &PauliSum,
+    inst: &[TrueInstance],
+    g: &[f64],
+    edges: &[(f64, Vec<usize>)],
+    draws: &[Vec<f64>],
+    n: usize,
+    psi0: &[Complex64],
+    times: &[f64],
+    stats: &mut Stats,
+    mut at: impl FnMut(usize, &[Complex64]),
+) {
+    let mut psi = psi0.to_vec();
+    let mut work = Workspace::default();
+    let mut current = g.to_vec();
+    let mut h = noisy_operator(base, inst, &current, n);
+    let mut now = 0.0;
+    let mut bound = 0.0;
+    let mut drift = 0.0f64;
+    let mut next_edge = 0;
+    for (k, &t) in times.iter().enumerate() {
+        while next_edge < edges.len() && edges[next_edge].0 < t {
+            let (edge, who) = &edges[next_edge];
+            let rep = evolve(&h, &mut psi, edge - now, DEFAULT_TOLERANCE, &mut work);
+            now = *edge;
+            stats.products += rep.products;
+            bound += rep.truncation_bound;
+            for (&i, &v) in who.iter().zip(&draws[next_edge]) {
+                current[i] = v;
+            }
+            h = noisy_operator(base, inst, &current, n);
+            next_edge += 1;
+        }
+        let rep = evolve(&h, &mut psi, t - now, DEFAULT_TOLERANCE, &mut work);
+        now = t;
+        stats.products += rep.products;
+        bound += rep.truncation_bound;
+        drift = drift.max((super::propagate::norm(&psi) - 1.0).abs());
+        at(k, &psi);
+    }
+    stats.evolutions += 1;
+    stats.max_truncation_bound = stats.max_truncation_bound.max(bound);
+    stats.max_norm_drift = stats.max_norm_drift.max(drift);
+}
+
 pub(super) struct RealizationResult {
     pub(super) values: Vec<Array2<f64>>, // per observable: 1 × T shot means
     pub(super) exact: Vec<Vec<f64>>,     // per observable: T
@@ -433,6 +532,8 @@ pub(super) struct RealizationResult {
 struct Prepared {
     rng: rand_chacha::ChaCha20Rng,
     g: Vec<f64>,
+    /// The draws at the window edges (empty for static noise).
+    windows: Vec<Vec<f64>>,
     /// Flip pattern → shots.
     patterns: BTreeMap<u64, u64>,
 }
@@ -501,12 +602,40 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
     });
 
     let redrawn = s.true_noise.redrawn;
-    let once: Vec<f64> = {
+    // Window edges of noise drawn again during an evolution (none: the static simulation,
+    // which draws exactly the numbers it drew before correlation times existed).
+    let t_max = s.times.iter().fold(0.0f64, |m, &t| m.max(t));
+    let edges = window_edges(&instances, t_max);
+    if !edges.is_empty() && !s.noise.device.is_empty() {
+        return Err(Problem::new(
+            "/noise",
+            "has device sections and a source with a correlation_time below the last time; the \
+             simulator does not evolve density matrices under windowed noise: remove one of the \
+             two (or make the correlation time at least the last time)",
+        ));
+    }
+    let (once, once_windows): (Vec<f64>, Vec<Vec<f64>>) = {
         let mut rng = sample::stream(seed, sample::ONCE_STREAM);
-        instances
+        let g = instances
             .iter()
             .map(|i| sample::draw(&mut rng, &i.family))
-            .collect()
+            .collect();
+        (g, draw_windows(&mut rng, &edges, &instances))
+    };
+    // One evolution: static, or with the windows' draws.
+    let evolve_one = |h: &Operator,
+                      g: &[f64],
+                      windows: &[Vec<f64>],
+                      psi0: &[Complex64],
+                      st: &mut Stats,
+                      at: &mut dyn FnMut(usize, &[Complex64])| {
+        if edges.is_empty() {
+            trajectory(h, psi0, &s.times, st, at);
+        } else {
+            windowed_trajectory(
+                &base, &instances, g, &edges, windows, n, psi0, &s.times, st, at,
+            );
+        }
     };
     let shots = s.shots;
     let k_obs = compiled.len();
@@ -563,8 +692,9 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
                         });
                         st.flip_patterns += usize::from(mask != 0);
                     }
+                    let windows = draw_windows(&mut rng, &edges, &instances);
                     let h = noisy_operator(&base, &instances, &g, n);
-                    trajectory(&h, &initial(mask), &s.times, &mut st, |k, psi| {
+                    evolve_one(&h, &g, &windows, &initial(mask), &mut st, &mut |k, psi| {
                         for (o, c) in compiled.iter().enumerate() {
                             let e = c.exact(psi);
                             exact[o][k] += e;
@@ -602,13 +732,14 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
                     return None;
                 }
                 let mut rng = sample::realization_stream(seed, r);
-                let g: Vec<f64> = if redrawn == Redrawn::Once {
-                    once.clone()
+                let (g, windows): (Vec<f64>, Vec<Vec<f64>>) = if redrawn == Redrawn::Once {
+                    (once.clone(), once_windows.clone())
                 } else {
-                    instances
+                    let g = instances
                         .iter()
                         .map(|i| sample::draw(&mut rng, &i.family))
-                        .collect()
+                        .collect();
+                    (g, draw_windows(&mut rng, &edges, &instances))
                 };
                 let patterns = if q > 0.0 {
                     sample::flip_pattern_counts(&mut rng, n, shots, q)
@@ -621,7 +752,12 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
                         over.store(true, Ordering::Relaxed);
                     }
                 }
-                Some(Prepared { rng, g, patterns })
+                Some(Prepared {
+                    rng,
+                    g,
+                    windows,
+                    patterns,
+                })
             })
             .collect();
         if over.load(Ordering::Relaxed) {
@@ -642,6 +778,7 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
                 let Some(Prepared {
                     mut rng,
                     g,
+                    windows,
                     patterns,
                 }) = prep
                 else {
@@ -654,7 +791,7 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
                 let alone = patterns.len() == 1;
                 let h = noisy_operator(&base, &instances, &g, n);
                 for (&mask, &count) in &patterns {
-                    trajectory(&h, &initial(mask), &s.times, &mut st, |k, psi| {
+                    evolve_one(&h, &g, &windows, &initial(mask), &mut st, &mut |k, psi| {
                         for (o, c) in compiled.iter().enumerate() {
                             let e = c.exact(psi);
                             if alone {

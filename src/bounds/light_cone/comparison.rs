@@ -197,6 +197,7 @@ impl ComparisonPlan {
             family: Family::Uniform,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         };
         let mut instances = Vec::new();
         let mut where_: Vec<(usize, usize)> = Vec::new();

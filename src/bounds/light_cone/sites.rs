@@ -24,6 +24,7 @@ pub fn site_instances(n_sites: usize) -> Vec<Instance> {
             family: Family::TwoPoint,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         })
         .collect()
 }

@@ -13,6 +13,7 @@ fn site_instances(n: usize) -> Vec<Instance> {
             family: Family::Uniform,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         })
         .collect()
 }
@@ -149,6 +150,7 @@ fn site_and_bond_instances(l: &Lattice) -> Vec<Instance> {
             family: Family::TwoPoint,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         });
     }
     inst
@@ -295,6 +297,7 @@ fn unavailable_reasons_are_reported() {
         family: Family::Normal { sigma: 1.0 },
         mean_offset: 0.0,
         mean_offset_uncertainty: 0.0,
+        correlation_time: None,
     });
     assert!(matches!(
         WalkGraph::new(&lattice, &[1.0; 3], 1, &inst),
@@ -309,6 +312,7 @@ fn unavailable_reasons_are_reported() {
         family: Family::Uniform,
         mean_offset: 0.0,
         mean_offset_uncertainty: 0.0,
+        correlation_time: None,
     });
     assert!(matches!(
         WalkGraph::new(&lattice, &[1.0; 3], 1, &inst),

@@ -26,6 +26,7 @@ use std::collections::HashMap;
 use super::family;
 use super::global::{self, FluctuationRoute, SourceData};
 use super::light_cone::{Exposure, Unavailable, WalkGraph};
+use super::windows;
 use crate::model::noise::{Instance, Redrawn};
 use rayon::prelude::*;
 
@@ -104,7 +105,10 @@ struct Compact {
     n_region: usize,
 }
 
-fn key(s: &SourceData) -> (u8, [u64; 4], u64, u64) {
+/// What makes two sources interchangeable in the sums: family, `δ`, `m` and correlation time.
+type SourceKey = (u8, [u64; 4], u64, u64, Option<u64>);
+
+fn key(s: &SourceData) -> SourceKey {
     use crate::model::noise::Family::*;
     let f = match s.family {
         Uniform => (0, [0; 4]),
@@ -126,7 +130,13 @@ fn key(s: &SourceData) -> (u8, [u64; 4], u64, u64) {
             ],
         ),
     };
-    (f.0, f.1, s.delta.to_bits(), s.systematic.to_bits())
+    (
+        f.0,
+        f.1,
+        s.delta.to_bits(),
+        s.systematic.to_bits(),
+        s.window.map(f64::to_bits),
+    )
 }
 
 fn compact(inp: &LocalInputs, exposure: &Exposure) -> Compact {
@@ -138,7 +148,7 @@ fn compact(inp: &LocalInputs, exposure: &Exposure) -> Compact {
         sources.push(inp.sources[s.instance]);
     }
     let n_region = sources.len();
-    let mut index: HashMap<(u8, [u64; 4], u64, u64), usize> = HashMap::new();
+    let mut index: HashMap<SourceKey, usize> = HashMap::new();
     let mut pseudo: Vec<(f64, f64)> = Vec::new();
     for (k, inst) in inp.instances.iter().enumerate() {
         if in_region[k] || inp.sources[k].delta == 0.0 {
@@ -210,15 +220,24 @@ fn point_terms(
     let ln_phi: Vec<f64> = reps
         .iter()
         .map(|&i| {
-            let y = 2.0 * t * c.sources[i].delta;
-            if y > 0.0 {
-                family::ln_phi(&c.sources[i].family, y)
+            let s = &c.sources[i];
+            let y = 2.0 * t * s.delta;
+            if s.windowed_at(t) {
+                // Σ_w ln φ(2δℓ_w): the source's windows in the product (docs/method.md §3).
+                windows::ln_phi(&s.family, s.delta, s.window, t)
+            } else if y > 0.0 {
+                family::ln_phi(&s.family, y)
             } else {
                 0.0
             }
         })
         .collect();
     let (e_bias, bias_set) = bias(inp.s_o, c, sens, class_of, &ln_phi, prefix);
+    // The sums of squares take each windowed source's fluctuation sensitivity; a pseudo-source
+    // takes that of its merged sensitivity, which is no smaller than the sum over its members
+    // (the squared greedy value is convex in e and 0 at 0, hence superadditive).
+    let linear = sens;
+    let sens = &*global::fluctuation_sensitivities(&c.sources, linear, inp.s_o, t);
     let one = global::fluctuation(&c.sources, sens, inp.p_single);
     let e_one = cap(inp.s_o, e_wc, e_sys + e_bias + one.value);
     let (fluct, route) = match inp.redrawn {
@@ -255,7 +274,7 @@ fn point_terms(
 
 /// Class index of each source (by distinct source data) and one representative per class.
 fn classes(sources: &[SourceData]) -> (Vec<usize>, Vec<usize>) {
-    let mut classes: HashMap<(u8, [u64; 4], u64, u64), usize> = HashMap::new();
+    let mut classes: HashMap<SourceKey, usize> = HashMap::new();
     let class_of: Vec<usize> = sources
         .iter()
         .map(|s| {

@@ -20,6 +20,7 @@ fn instances(l: &Lattice, d_site: f64, d_bond: f64) -> Vec<Instance> {
             family: Family::Uniform,
             mean_offset: 0.1,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         })
         .collect();
     for (e, &[a, b]) in l.bonds().iter().enumerate() {
@@ -31,6 +32,7 @@ fn instances(l: &Lattice, d_site: f64, d_bond: f64) -> Vec<Instance> {
             family: Family::TwoPoint,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         });
     }
     v

@@ -2,7 +2,7 @@
 //! the sensitivities), computed once, then the tests of one observable at a time so that a
 //! streaming reader can drop its data, and the Holm correction over all of them at the end.
 
-use crate::bounds::global::{bias_ln_sum, PointBounds, SourceData};
+use crate::bounds::global::{bias_ln_sum, fluctuation_sensitivities, PointBounds, SourceData};
 use crate::checks::columns::ColumnStats;
 use crate::checks::ideal::HalfWidth;
 use crate::checks::maurer_pontil;
@@ -135,10 +135,13 @@ impl<'a> CheckPlan<'a> {
             for (k, &t) in self.times.iter().enumerate() {
                 global.clear();
                 global.resize(self.sources.len(), s_o * t);
-                let sens: &[f64] = match sensitivities.and_then(|v| v.get(k)) {
+                let linear: &[f64] = match sensitivities.and_then(|v| v.get(k)) {
                     Some(e) => e,
                     None => &global,
                 };
+                // V_noise is a sum of squares: windowed sources take their fluctuation
+                // sensitivities (docs/method.md §3, "Windows").
+                let sens = &*fluctuation_sensitivities(self.sources, linear, s_o, t);
                 let shots = stats.shots.get(k).copied();
                 let variance = match shots {
                     Some(shots) if r >= 2 => {
@@ -171,6 +174,7 @@ impl<'a> CheckPlan<'a> {
                         let deviation = m - ideal[k];
                         let half_width = HalfWidth::new(
                             s_o,
+                            t,
                             self.sources,
                             &global,
                             self.bias_ln_sums.get(k).copied().unwrap_or(f64::NAN),

@@ -57,6 +57,7 @@ fn record(delta: f64, redrawn: Redrawn) -> NoiseModel {
             family: Family::Uniform,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
+            correlation_time: None,
         }],
         device: Default::default(),
     }

@@ -213,6 +213,28 @@ pub fn scenario_from_value(value: &Value) -> Result<Scenario, Vec<Problem>> {
     }
     if let Some((record, _)) = &declared {
         device_limits(&mut rd, record, &lattice, &observables, top);
+        // Windowed noise is simulated with state vectors only (docs/scenario.md).
+        if !record.device.is_empty() {
+            for (key, rec) in [
+                ("noise", Some(record)),
+                ("true_noise", truth.as_ref().map(|t| &t.0)),
+            ] {
+                let Some(rec) = rec else { continue };
+                if key == "true_noise" && !top.contains_key("true_noise") {
+                    continue;
+                }
+                for (i, src) in rec.sources.iter().enumerate() {
+                    if src.correlation_time.is_some() {
+                        rd.push(
+                            format!("/{key}/sources/{i}/correlation_time"),
+                            "cannot be rehearsed beside device sections (the simulator evolves \
+                             density matrices only under noise constant during an evolution); \
+                             remove the correlation time or the device sections",
+                        );
+                    }
+                }
+            }
+        }
     }
     if !rd.problems.is_empty() {
         return Err(fix_root(rd.problems));

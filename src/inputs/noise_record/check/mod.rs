@@ -1,4 +1,4 @@
-//! The rules of a `quassay-noise` record (versions 1 and 2), checked by walking a [`serde_json::Value`] by hand.
+//! The rules of a `quassay-noise` record (versions 1, 2 and 3), checked by walking a [`serde_json::Value`] by hand.
 //!
 //! A derived `Deserialize` would stop at the first mistake and could not name every place; this
 //! walker visits the whole record, collects every problem with its JSON pointer, and builds the
@@ -35,7 +35,10 @@ pub const FORMAT_VERSION: u64 = 1;
 /// The `format_version` that allows the device sections `incoherent`, `preparation` and
 /// `readout` (docs/noise-record.md, "Version 2"); version 1 records read as before.
 pub const FORMAT_VERSION_DEVICE: u64 = 2;
-/// The top-level keys of version 2 only.
+/// The `format_version` that also allows a source's `correlation_time` (docs/noise-record.md,
+/// "Version 3"); versions 1 and 2 read as before.
+pub const FORMAT_VERSION_WINDOWS: u64 = 3;
+/// The top-level keys of versions 2 and 3 only.
 const DEVICE_KEYS: [&str; 3] = ["incoherent", "preparation", "readout"];
 
 /// One allowed key of an object: its name, whether it is required, and what it should hold.
@@ -65,7 +68,7 @@ const TOP_FIELDS: &[Field] = &[
     req("format", "the string \"quassay-noise\""),
     req(
         "format_version",
-        "the integer 1, or 2 for a record with device sections",
+        "the integer 1; 2 for a record with device sections; 3 for one with correlation times",
     ),
     req(
         "frequency_unit",
@@ -117,6 +120,16 @@ const SOURCE_FIELDS: &[Field] = &[
         "mean_offset_uncertainty",
         "a non-negative number, default 0",
     ),
+    opt(
+        "correlation_time",
+        "(version 3) {\"value\": τ, \"unit\": \"us\"}: the noise is redrawn every τ during an \
+         evolution",
+    ),
+];
+
+const CORRELATION_FIELDS: &[Field] = &[
+    req("value", "the correlation time τ, a positive number"),
+    req("unit", "the unit of τ: \"s\", \"ms\", \"us\" or \"ns\""),
 ];
 
 const SITES_FIELDS: &[Field] = &[req(
@@ -148,6 +161,8 @@ const STD_SLACK: f64 = 8.0 * f64::EPSILON;
 #[derive(Default)]
 struct Ctx {
     problems: Vec<Problem>,
+    /// The record's `format_version`, once read (the source rules depend on it).
+    version: Option<u64>,
 }
 
 impl Ctx {
@@ -190,18 +205,21 @@ fn top(ctx: &mut Ctx, v: &Value) -> Option<NoiseRecord> {
     let mut version = None;
     if let Some(f) = map.get("format_version") {
         match integer(f) {
-            Some(n @ (FORMAT_VERSION | FORMAT_VERSION_DEVICE)) => version = Some(n),
+            Some(n @ (FORMAT_VERSION | FORMAT_VERSION_DEVICE | FORMAT_VERSION_WINDOWS)) => {
+                version = Some(n)
+            }
             Some(n) => ctx.push(
                 &at("format_version"),
                 format!(
-                    "version {n} is not supported; this quassay reads versions {FORMAT_VERSION} \
-                     and {FORMAT_VERSION_DEVICE}"
+                    "version {n} is not supported; this quassay reads versions {FORMAT_VERSION}, \
+                     {FORMAT_VERSION_DEVICE} and {FORMAT_VERSION_WINDOWS}"
                 ),
             ),
             None => ctx.push(
                 &at("format_version"),
                 format!(
-                    "must be the integer {FORMAT_VERSION} or {FORMAT_VERSION_DEVICE}, got {}",
+                    "must be the integer {FORMAT_VERSION}, {FORMAT_VERSION_DEVICE} or \
+                     {FORMAT_VERSION_WINDOWS}, got {}",
                     f
                 ),
             ),
@@ -219,6 +237,7 @@ fn top(ctx: &mut Ctx, v: &Value) -> Option<NoiseRecord> {
             );
         }
     }
+    ctx.version = version;
     let unit = map
         .get("frequency_unit")
         .and_then(|u| frequency_unit(ctx, u, &at("frequency_unit")));

@@ -8,8 +8,9 @@ use crate::inputs::noise_record::pointer::{child_index, child_key};
 use crate::model::noise::{ActsOn, Amplitude, NoiseSource};
 
 use super::distribution::distribution;
-use super::values::{choice, integer, kind, non_negative, number, object, string};
+use super::values::{choice, integer, kind, non_negative, number, object, positive, string};
 use super::*;
+use crate::model::units::TimeUnit;
 
 pub(super) fn sources(ctx: &mut Ctx, v: &Value, path: &str) -> Option<Vec<NoiseSource>> {
     let Value::Array(items) = v else {
@@ -98,7 +99,12 @@ fn source(ctx: &mut Ctx, v: &Value, path: &str) -> Option<NoiseSource> {
             "the uncertainty of `mean_offset`, in units of the amplitude",
         ),
     };
+    let correlation_time = match map.get("correlation_time") {
+        None => Some(None),
+        Some(c) => correlation_time(ctx, c, &at("correlation_time")).map(Some),
+    };
     Some(NoiseSource {
+        correlation_time: correlation_time?,
         name: name?,
         acts_on: acts_on?,
         operator_spectrum: spectrum?,
@@ -107,6 +113,48 @@ fn source(ctx: &mut Ctx, v: &Value, path: &str) -> Option<NoiseSource> {
         mean_offset: mean_offset?,
         mean_offset_uncertainty: uncertainty?,
     })
+}
+
+/// `{"value": τ, "unit": "us"}`, allowed from format version 3 on.
+fn correlation_time(ctx: &mut Ctx, v: &Value, path: &str) -> Option<(f64, TimeUnit)> {
+    if let Some(n) = ctx.version.filter(|&n| n < FORMAT_VERSION_WINDOWS) {
+        ctx.push(
+            path,
+            format!(
+                "is a key of format version {FORMAT_VERSION_WINDOWS}; set `format_version` to \
+                 {FORMAT_VERSION_WINDOWS} (a version {n} record describes noise that is \
+                 constant during each evolution)"
+            ),
+        );
+        return None;
+    }
+    let map = object(
+        ctx,
+        v,
+        path,
+        "an object {\"value\": τ, \"unit\": \"us\"}",
+        CORRELATION_FIELDS,
+    )?;
+    let value = map.get("value").and_then(|x| {
+        positive(
+            ctx,
+            x,
+            &child_key(path, "value"),
+            "the correlation time τ, a positive number",
+        )
+    });
+    let unit = map.get("unit").and_then(|u| {
+        let names: Vec<&str> = TimeUnit::ALL.iter().map(|(_, s)| *s).collect();
+        choice(
+            ctx,
+            u,
+            &child_key(path, "unit"),
+            &names,
+            "the unit of the correlation time",
+        )
+        .and_then(TimeUnit::parse)
+    });
+    Some((value?, unit?))
 }
 
 fn acts_on(ctx: &mut Ctx, v: &Value, path: &str) -> Option<ActsOn> {

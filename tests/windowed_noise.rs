@@ -1,0 +1,403 @@
+//! Noise drawn again during an evolution (correlation times, noise record version 3): the
+//! bounds hold on exact simulations (docs/method.md §1, §3, §4, §5 "Windows").
+//!
+//! Outside reference: exact state-vector simulation (`simulate`, whose propagation is checked
+//! against SciPy's `expm_multiply` in `tests/simulate.rs`), which draws the noise again at
+//! every multiple of each source's correlation time and evolves through the window edges.
+//! Invented scenarios: chains of 6, 8 and 10 sites, XXZ with fields, uniform and two-point
+//! families on sites and bonds, correlation times from `t_max/100` to `t_max`, 2100
+//! realizations in all, each an independent noise trajectory. At every (observable, time):
+//!
+//! * worst case: `|f_g(t) − f(t)| ≤ E_wc(t)` for every trajectory (probability one);
+//! * one evolution: the number of trajectories with `|f_g(t) − f(t)| > E_1(t; p)` stays below
+//!   the critical value of a one-sided binomial test at level 0.001, for p = 0.5, 0.2, 0.05
+//!   (each trajectory exceeds with probability at most `p`, independently). `E_1` is the
+//!   certificate's: the smaller of the global and light-cone statements (`evaluate_run`,
+//!   pointwise at ε = p).
+//!
+//! One case is built so that the bound is nearly attained (one source on the observed site):
+//! a bound too small by a constant factor would fail there. The thresholds are fixed and the
+//! seeds too, so the outcome is deterministic.
+
+use serde_json::{json, Value};
+
+use quassay::bounds::confidence::Simultaneity;
+use quassay::bounds::run_bounds::evaluate_run;
+use quassay::inputs::scenario::scenario_from_value;
+use quassay::simulate::run::simulate;
+
+use crate::util::{binomial_critical, scenario, source};
+
+const LEVEL: f64 = 0.001;
+const P_VALUES: [f64; 3] = [0.5, 0.2, 0.05];
+/// Accuracy of the exact simulation (docs/simulator.md).
+const SIM_TOL: f64 = 1e-9;
+/// The scenarios' last time (util::scenario: 0 to 1.5 us in 6 steps).
+const T_MAX: f64 = 1.5;
+
+/// `v` with noise record version 3 and the correlation times (us) of its sources.
+fn windowed(mut v: Value, taus: &[Option<f64>]) -> Value {
+    v["noise"]["format_version"] = json!(3);
+    for (i, tau) in taus.iter().enumerate() {
+        if let Some(tau) = tau {
+            v["noise"]["sources"][i]["correlation_time"] = json!({"value": tau, "unit": "us"});
+        }
+    }
+    v
+}
+
+struct Measured {
+    /// Largest |error| / E_1(p = 0.5) over trajectories, observables and times t > 0.
+    ratio: f64,
+    /// Light-cone statements among the points, and all points (at p = 0.05).
+    light_cone: (usize, usize),
+    /// Largest E_1(p = 0.05) of the case, and the same with the correlation times removed.
+    e_one_last: (f64, f64),
+}
+
+fn check(name: &str, case: &Value) -> Measured {
+    let s = scenario_from_value(case).unwrap_or_else(|p| panic!("{name}: {p:?}"));
+    let sim = simulate(&s, s.seed);
+    let model = s.noise.expand(&sim.run.lattice, sim.run.time_unit).unwrap();
+    let r = s.realizations;
+    let mut m = Measured {
+        ratio: 0.0,
+        light_cone: (0, 0),
+        e_one_last: (0.0, 0.0),
+    };
+    for &p in &P_VALUES {
+        let b = evaluate_run(&sim.run, &model, 1.0 - p, Simultaneity::Pointwise).unwrap();
+        let allowed = binomial_critical(r as u64, p, LEVEL);
+        for (o, ob) in b.observables.iter().enumerate() {
+            let truth = &sim.truth.observables[o];
+            for (k, pt) in ob.points.iter().enumerate() {
+                let mut over = 0u64;
+                for j in 0..r {
+                    let err = (truth.exact[[j, k]] - truth.ideal[k]).abs();
+                    assert!(
+                        err <= pt.e_wc + SIM_TOL,
+                        "{name}: {} t[{k}] trajectory {j}: error {err} above E_wc {}",
+                        ob.name,
+                        pt.e_wc
+                    );
+                    if err > pt.e_one + SIM_TOL {
+                        over += 1;
+                    }
+                    if p == 0.5 && pt.e_one > 0.0 && k > 0 {
+                        m.ratio = m.ratio.max(err / pt.e_one);
+                    }
+                }
+                assert!(
+                    over < allowed,
+                    "{name}: {} t[{k}] p = {p}: {over} of {r} trajectories above E_1 = {} \
+                     (allowed below {allowed})",
+                    ob.name,
+                    pt.e_one
+                );
+            }
+        }
+        if p == 0.05 {
+            m.light_cone = b.statement_counts();
+            m.e_one_last.0 = b
+                .observables
+                .iter()
+                .map(|o| o.points.last().map_or(0.0, |p| p.e_one))
+                .fold(0.0, f64::max);
+            // The same record with every source static: windows may only lower E_1.
+            let mut plain = s.noise.clone();
+            for src in &mut plain.sources {
+                src.correlation_time = None;
+            }
+            let plain = plain.expand(&sim.run.lattice, sim.run.time_unit).unwrap();
+            let b0 = evaluate_run(&sim.run, &plain, 1.0 - p, Simultaneity::Pointwise).unwrap();
+            for (o, o0) in b.observables.iter().zip(&b0.observables) {
+                for (x, x0) in o.points.iter().zip(&o0.points) {
+                    assert!(
+                        x.e_one <= x0.e_one * (1.0 + 1e-12),
+                        "{name}: windows raised E_1"
+                    );
+                    assert!(
+                        x.e_avg <= x0.e_avg * (1.0 + 1e-12),
+                        "{name}: windows raised E_avg"
+                    );
+                }
+            }
+            m.e_one_last.1 = b0
+                .observables
+                .iter()
+                .map(|o| o.points.last().map_or(0.0, |p| p.e_one))
+                .fold(0.0, f64::max);
+        }
+    }
+    println!(
+        "{name}: largest error/E_1(0.5) {:.3}; light-cone points {}/{}; E_1(0.05) at t_max \
+         {:.4} (static {:.4})",
+        m.ratio, m.light_cone.0, m.light_cone.1, m.e_one_last.0, m.e_one_last.1
+    );
+    m
+}
+
+fn chain(n: usize) -> Value {
+    json!({"geometry": "chain", "shape": [n], "boundary": "open"})
+}
+
+#[test]
+fn chain6_uniform_and_two_point_with_a_hundred_windows() {
+    let v = scenario(
+        "invented-windows-chain6",
+        chain(6),
+        json!({"J": 1.0, "anisotropy": 0.5, "hx": 0.4, "hz": [0.3, -0.2, 0.1, 0.0, -0.3, 0.2]}),
+        json!("neel"),
+        json!([
+            {"name": "Z_2", "pauli": "Z", "sites": [2]},
+            {"name": "XY_2_3", "pauli": "XY", "sites": [2, 3]},
+            {"name": "stag", "pauli": "Z", "over": "each_site", "weights": "staggered_mean"}
+        ]),
+        "every_realization",
+        json!([
+            source(
+                "detuning",
+                "each_site",
+                "Z",
+                0.15,
+                json!({"family": "uniform"})
+            ),
+            source(
+                "bond jitter",
+                "each_bond",
+                "ZZ",
+                0.08,
+                json!({"family": "two_point"})
+            ),
+        ]),
+        600,
+        10,
+    );
+    let m = check(
+        "chain6 τ = t_max/100",
+        &windowed(v, &[Some(T_MAX / 100.0), Some(T_MAX / 100.0)]),
+    );
+    // Fast noise cancels in time: the certified E_1 at the last time is well below the static
+    // one (measured 0.33 against 2, the range, where the static bound is vacuous).
+    assert!(m.e_one_last.0 < 0.5 * m.e_one_last.1);
+}
+
+#[test]
+fn chain8_two_point_sites_with_ten_windows() {
+    let v = scenario(
+        "invented-windows-chain8",
+        chain(8),
+        json!({"J": 1.0, "anisotropy": 1.0, "hx": 0.3, "hz": 0.0}),
+        json!("neel"),
+        json!([
+            {"name": "Z_3", "pauli": "Z", "sites": [3]},
+            {"name": "ZZ_3_4", "pauli": "ZZ", "sites": [3, 4]}
+        ]),
+        "every_realization",
+        json!([source(
+            "detuning",
+            "each_site",
+            "Z",
+            0.06,
+            json!({"family": "two_point"})
+        )]),
+        500,
+        10,
+    );
+    check("chain8 τ = t_max/10", &windowed(v, &[Some(T_MAX / 10.0)]));
+}
+
+#[test]
+fn chain10_uniform_bonds_and_static_sites() {
+    let v = scenario(
+        "invented-windows-chain10",
+        chain(10),
+        json!({"J": 1.0, "anisotropy": 0.0, "hx": 0.2, "hz": 0.1}),
+        json!("0"),
+        json!([
+            {"name": "Z_5", "pauli": "Z", "sites": [5]},
+            {"name": "mag", "pauli": "Z", "over": "each_site", "weights": "mean"}
+        ]),
+        "every_realization",
+        json!([
+            source(
+                "exchange",
+                "each_bond",
+                "XX+YY",
+                0.01,
+                json!({"family": "uniform"})
+            ),
+            source(
+                "detuning",
+                "each_site",
+                "Z",
+                0.02,
+                json!({"family": "uniform"})
+            ),
+        ]),
+        400,
+        10,
+    );
+    // τ = t_max/3 on the bonds; the sites' τ = t_max is one window: static.
+    check(
+        "chain10 τ = t_max/3 and t_max",
+        &windowed(v, &[Some(T_MAX / 3.0), Some(T_MAX)]),
+    );
+}
+
+#[test]
+fn one_windowed_source_on_the_observed_site_nearly_attains_the_bound() {
+    // H acts away from site 0 only through the bond (0, 1), which is weak; a two-point Z
+    // source on site 0 from |+⟩ rotates X_0 by a phase 2δ Σ_w g_w ℓ_w: the bound's
+    // fluctuation term is then close to the spread of the phase.
+    let v = scenario(
+        "invented-windows-tight",
+        chain(6),
+        json!({"J": [0.01, 1.0, 1.0, 1.0, 1.0], "anisotropy": 0.0, "hx": 0.0, "hz": 0.0}),
+        json!("+"),
+        json!([{"name": "X_0", "pauli": "X", "sites": [0]}]),
+        "every_realization",
+        json!([{"name": "detuning", "acts_on": {"sites": [[0]]}, "operator": "Z",
+                 "amplitude": 0.4, "distribution": {"family": "two_point"},
+                 "mean_offset": 0.0, "mean_offset_uncertainty": 0.0}]),
+        600,
+        10,
+    );
+    let m = check("tight τ = t_max/20", &windowed(v, &[Some(T_MAX / 20.0)]));
+    assert!(
+        m.ratio > 0.3,
+        "the bound should be nearly attained here: largest error/E_1 = {}",
+        m.ratio
+    );
+}
+
+// ---------------------------------------------------------------------------------------
+// The binary on the bundled example chain12 (invented scenario, `example_runs/`).
+
+/// Certifies chain12 with `noise` (a record as JSON) and returns the certificate's body.
+fn certify_chain12(noise: &Value, extra: &[&str]) -> Value {
+    let dir = crate::util::scratch();
+    let run = dir.path().join("run.h5");
+    std::fs::copy(
+        crate::util::repo().join("example_runs/chain12/run.h5"),
+        &run,
+    )
+    .unwrap();
+    let record = dir.path().join("noise.json");
+    std::fs::write(&record, serde_json::to_string_pretty(noise).unwrap()).unwrap();
+    let cert = dir.path().join("c.json");
+    crate::util::quassay()
+        .arg("certify")
+        .arg(&run)
+        .arg("--noise")
+        .arg(&record)
+        .arg("-o")
+        .arg(&cert)
+        .args(extra)
+        .assert()
+        .success();
+    let v: Value = serde_json::from_str(&std::fs::read_to_string(&cert).unwrap()).unwrap();
+    v["body"].clone()
+}
+
+fn chain12_record() -> Value {
+    let text = std::fs::read_to_string(crate::util::repo().join("example_runs/chain12/noise.json"))
+        .unwrap();
+    serde_json::from_str(&text).unwrap()
+}
+
+/// τ at least the last time (1 us) is one window: the body equals the static one except for
+/// the members of format 1.4 and the record's own digest and size.
+#[test]
+fn a_correlation_time_beyond_the_last_time_changes_nothing_but_the_new_members() {
+    let plain = chain12_record();
+    let mut long = plain.clone();
+    long["format_version"] = json!(3);
+    long["sources"][0]["correlation_time"] = json!({"value": 1000.0, "unit": "ns"});
+    for share in ["0", "0.5"] {
+        let a = certify_chain12(&plain, &["--data-share", share]);
+        let mut b = certify_chain12(&long, &["--data-share", share]);
+        assert_eq!(b["format_minor"], json!(4));
+        let tm = &b["noise"]["sources"][0]["time_model"];
+        assert_eq!(tm["kind"], "windows");
+        assert_eq!(tm["correlation_time"]["value"].as_f64(), Some(1000.0));
+        assert_eq!(tm["correlation_time"]["unit"], "ns");
+        assert_eq!(tm["correlation_time_run_unit"].as_f64(), Some(1.0));
+        // Remove what format 1.4 adds or changes; the rest must be equal, number for number.
+        let m = b.as_object_mut().unwrap();
+        match a.get("format_minor") {
+            Some(x) => {
+                m.insert("format_minor".into(), x.clone());
+            }
+            None => {
+                m.remove("format_minor");
+            }
+        }
+        for key in ["assumptions", "not_covered"] {
+            m.insert(key.into(), a[key].clone());
+        }
+        b["noise"]["sources"][0]
+            .as_object_mut()
+            .unwrap()
+            .remove("time_model");
+        b["noise"].as_object_mut().unwrap().remove("format_version");
+        b["claim"].as_object_mut().unwrap().remove("time_model");
+        b["inputs"]["noise_record"] = a["inputs"]["noise_record"].clone();
+        assert_eq!(a, b, "data share {share}");
+    }
+}
+
+/// Bad correlation times exit 1 and name the JSON pointer.
+#[test]
+fn bad_correlation_times_exit_1_with_the_pointer() {
+    let dir = crate::util::scratch();
+    let run = dir.path().join("run.h5");
+    std::fs::copy(
+        crate::util::repo().join("example_runs/chain12/run.h5"),
+        &run,
+    )
+    .unwrap();
+    let mut cases = Vec::new();
+    let mut v = chain12_record();
+    v["sources"][0]["correlation_time"] = json!({"value": 2.0, "unit": "ns"});
+    cases.push((v.clone(), "/sources/0/correlation_time", "format version 3"));
+    v["format_version"] = json!(3);
+    v["sources"][0]["correlation_time"] = json!({"value": 0.0, "unit": "ns"});
+    cases.push((
+        v.clone(),
+        "/sources/0/correlation_time/value",
+        "must be > 0",
+    ));
+    v["sources"][0]["correlation_time"] = json!({"value": -1.0, "unit": "ns"});
+    cases.push((
+        v.clone(),
+        "/sources/0/correlation_time/value",
+        "must be > 0",
+    ));
+    v["sources"][0]["correlation_time"] = json!({"value": 2.0});
+    cases.push((
+        v.clone(),
+        "/sources/0/correlation_time",
+        "`unit` is missing",
+    ));
+    for (i, (record, pointer, says)) in cases.into_iter().enumerate() {
+        let path = dir.path().join(format!("bad{i}.json"));
+        std::fs::write(&path, serde_json::to_string(&record).unwrap()).unwrap();
+        let out = crate::util::quassay()
+            .arg("certify")
+            .arg(&run)
+            .arg("--noise")
+            .arg(&path)
+            .arg("-o")
+            .arg(dir.path().join("c.json"))
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(1), "case {i}");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            err.contains(pointer) && err.contains(says),
+            "case {i}: {err}"
+        );
+        assert!(!dir.path().join("c.json").exists());
+    }
+}
