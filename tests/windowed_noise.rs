@@ -297,6 +297,12 @@ fn certify_chain12(noise: &Value, extra: &[&str]) -> Value {
         .assert()
         .success();
     let v: Value = serde_json::from_str(&std::fs::read_to_string(&cert).unwrap()).unwrap();
+    // Every certificate matches schemas/certificate.schema.json (jsonschema, draft 2020-12).
+    let errors: Vec<String> = crate::util::certificate_validator()
+        .iter_errors(&v)
+        .map(|e| format!("{} at {}", e, e.instance_path))
+        .collect();
+    assert!(errors.is_empty(), "schema: {errors:?}");
     v["body"].clone()
 }
 
@@ -400,4 +406,66 @@ fn bad_correlation_times_exit_1_with_the_pointer() {
         );
         assert!(!dir.path().join("c.json").exists());
     }
+}
+
+// ---------------------------------------------------------------------------------------
+// The simulator's windows.
+
+fn one_spin(tau: Option<f64>) -> Value {
+    // Two uncoupled sites from |+⟩; a two-point Z source on site 0 only. X_0 is then
+    // cos(2δ Σ_w g_w ℓ_w) exactly (closed form).
+    let v = scenario(
+        "invented-windows-one-spin",
+        chain(2),
+        json!({"J": 0.0, "anisotropy": 0.0, "hx": 0.0, "hz": 0.0}),
+        json!("+"),
+        json!([{"name": "X_0", "pauli": "X", "sites": [0]}]),
+        "every_realization",
+        json!([{"name": "detuning", "acts_on": {"sites": [[0]]}, "operator": "Z",
+                 "amplitude": 0.7, "distribution": {"family": "two_point"},
+                 "mean_offset": 0.0, "mean_offset_uncertainty": 0.0}]),
+        200,
+        10,
+    );
+    windowed(v, &[tau])
+}
+
+/// Against the closed form: with τ = t_max/5 the exact value at t_k = kτ is
+/// `cos(2δτ m)` for some `m ∈ {−k, −k+2, …, k}`, and more than two values occur at the last
+/// time (static noise gives only `cos(2δt)`); with τ beyond the last time the simulation is
+/// bit for bit the static one.
+#[test]
+fn the_simulator_redraws_at_the_window_edges() {
+    let delta = 0.7;
+    let tau = T_MAX / 5.0;
+    let s = scenario_from_value(&one_spin(Some(tau))).unwrap();
+    let sim = simulate(&s, s.seed);
+    let exact = &sim.truth.observables[0].exact;
+    let times = &sim.run.times;
+    for (k, &t) in times.iter().enumerate() {
+        let n = (t / tau).round() as i64;
+        for j in 0..s.realizations {
+            let x = exact[[j, k]];
+            let near = (-n..=n)
+                .step_by(2)
+                .any(|m| (x - (2.0 * delta * tau * m as f64).cos()).abs() < SIM_TOL);
+            assert!(near, "t = {t}: {x} is no cos(2δτm)");
+        }
+    }
+    let last = times.len() - 1;
+    let mut values: Vec<i64> = (0..s.realizations)
+        .map(|j| (exact[[j, last]] * 1e6).round() as i64)
+        .collect();
+    values.sort_unstable();
+    values.dedup();
+    assert!(values.len() > 2, "only {values:?} at the last time");
+
+    let stat = scenario_from_value(&one_spin(None)).unwrap();
+    let long = scenario_from_value(&one_spin(Some(10.0 * T_MAX))).unwrap();
+    let a = simulate(&stat, stat.seed);
+    let b = simulate(&long, long.seed);
+    assert_eq!(
+        a.truth.observables[0].exact, b.truth.observables[0].exact,
+        "τ beyond the last time must simulate exactly the static noise"
+    );
 }

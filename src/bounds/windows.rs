@@ -256,4 +256,48 @@ mod tests {
         assert!((s0 - 1.0).abs() < 0.05, "static exponent {s0}");
         assert!((s1 - 0.5).abs() < 0.05, "windowed exponent {s1}");
     }
+
+    /// Against the committed SciPy fixture (tests/reference/windows/make_fixtures.py, SciPy
+    /// 1.17.1 quadrature): one site, H = 0, |+⟩, noise `δ g(s) Z` drawn again every τ, O = X
+    /// (s_O = 2). The bound `(s_O/2)(Π_w φ(2δℓ_w) − 1)` is never below the exact bias
+    /// `1 − Π_w E cos(2δ g ℓ_w)`; both agree with the second-order Dyson term
+    /// `2δ²σ² ∫∫ C` (double quadrature of the window covariance) to its order; and the closed
+    /// form `Σ_w ℓ_w²` equals the double integral.
+    #[test]
+    fn the_bias_product_formula_against_scipy_quadrature() {
+        let text = include_str!("../../tests/reference/windows/bias.json");
+        let v: serde_json::Value = serde_json::from_str(text).unwrap();
+        let cases = v["cases"].as_array().unwrap();
+        assert!(cases.len() >= 50);
+        for c in cases {
+            let f = match c["family"].as_str().unwrap() {
+                "uniform" => Family::Uniform,
+                _ => Family::TwoPoint,
+            };
+            let num = |k: &str| c[k].as_f64().unwrap();
+            let (delta, tau, t) = (num("delta"), num("tau"), num("t"));
+            let exact = num("exact_bias");
+            let second = num("second_order");
+            let bound = ln_phi(&f, delta, Some(tau), t).exp_m1();
+            assert!(
+                bound >= exact * (1.0 - 1e-12),
+                "{c}: bound {bound} below the exact bias"
+            );
+            // Σ ℓ² in closed form against the double integral.
+            let q = quadratic_time(Some(tau), t);
+            assert!((q * q - num("sum_of_squared_lengths")).abs() < 1e-10, "{c}");
+            // Second order: bound and exact both equal 2δ²σ²Σℓ² up to O((δt)⁴).
+            let y = 2.0 * delta * t;
+            if y < 0.01 {
+                assert!(
+                    (bound / second - 1.0).abs() < 1e-4,
+                    "{c}: {bound} vs {second}"
+                );
+                assert!(
+                    (exact / second - 1.0).abs() < 1e-4,
+                    "{c}: {exact} vs {second}"
+                );
+            }
+        }
+    }
 }
