@@ -232,6 +232,59 @@ pub fn largest_integer(f: impl Fn(usize) -> f64, target: f64, min: usize, max: u
     }
 }
 
+/// The sources with every one drawn again every `tau` (docs/method.md §1, "Noise that changes
+/// during a run").
+pub fn with_correlation_time(sources: &[SourceData], tau: f64) -> Vec<SourceData> {
+    sources
+        .iter()
+        .map(|s| SourceData {
+            window: Some(tau),
+            ..*s
+        })
+        .collect()
+}
+
+/// The smallest correlation time the search tries, as a fraction of `t`.
+pub const SHORTEST_CORRELATION_FRACTION: f64 = 1e-12;
+
+/// The longest correlation time `τ`, common to every source, with `error(τ) ≤ target` at time
+/// `t`: `Unlimited` when static noise (`τ ≥ t`) already meets the target, `Infeasible` when
+/// even `τ = 10⁻¹²·t` does not; else bisection on `ln τ` in between. The error is not
+/// guaranteed to be monotone in `τ` for every family (the bias factor is for the symmetric
+/// ones), so `Found` promises only `error(value) ≤ target < error(upper)`.
+pub fn longest_correlation_time(
+    set: &PointSetting,
+    sources: &[SourceData],
+    t: f64,
+    target: f64,
+    which: Which,
+) -> Answer {
+    let f = |tau: f64| error(set, &with_correlation_time(sources, tau), t, which);
+    if t.is_nan() || t <= 0.0 || within(f(t), target) {
+        return Answer::Unlimited;
+    }
+    let mut lo = (t * SHORTEST_CORRELATION_FRACTION).ln();
+    let mut hi = t.ln();
+    if !within(f(lo.exp()), target) {
+        return Answer::Infeasible;
+    }
+    for _ in 0..200 {
+        if hi.exp() - lo.exp() <= REL_TOL * hi.exp() {
+            break;
+        }
+        let mid = 0.5 * (lo + hi);
+        if within(f(mid.exp()), target) {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    Answer::Found {
+        value: lo.exp(),
+        upper: hi.exp(),
+    }
+}
+
 /// The largest scale factor λ on every amplitude with `error(λ) ≤ target` at time `t`.
 pub fn largest_scale(
     set: &PointSetting,
@@ -382,6 +435,37 @@ mod tests {
         let a = largest_integer(|n| (n * n) as f64, 1000.0, 1, 1 << 20);
         assert_eq!(a.value(), Some(31.0));
         assert_eq!(largest_integer(|n| n as f64, 1e9, 1, 64), Answer::Unlimited);
+    }
+
+    /// The longest correlation time: at the answer the error is within the target and just
+    /// above it the target is exceeded; static noise within the target gives `Unlimited`.
+    /// Against the closed form of the leading term: with many sources and no shots the
+    /// averaged error is dominated by `r/√R ∝ √(tτ)` for `τ ≪ t`, so a target a quarter of the
+    /// static error asks for `τ ≈ t/16` (within 20 %: the bias and the last window add a little).
+    #[test]
+    fn longest_correlation_time_is_where_the_error_reaches_the_target() {
+        let set = setting(None);
+        let src = uniform(1e-3, 10_000);
+        let t = 1.0;
+        let e_static = error(&set, &src, t, Which::Averaged);
+        assert_eq!(
+            longest_correlation_time(&set, &src, t, 2.0 * e_static, Which::Averaged),
+            Answer::Unlimited
+        );
+        let target = 0.25 * e_static;
+        let a = longest_correlation_time(&set, &src, t, target, Which::Averaged);
+        let Answer::Found { value, upper } = a else {
+            panic!("{a:?}")
+        };
+        let at = |tau: f64| error(&set, &with_correlation_time(&src, tau), t, Which::Averaged);
+        assert!(at(value) <= target && at(upper) > target);
+        assert!((value / (t / 16.0) - 1.0).abs() < 0.2, "{value}");
+        // The shot term alone above the target: no correlation time helps.
+        let shots = setting(Some(10));
+        assert_eq!(
+            longest_correlation_time(&shots, &src, t, 1e-3, Which::Averaged),
+            Answer::Infeasible
+        );
     }
 
     /// The worst case is linear in λ: `λ_wc = target / (s_O t Σ δ_i b_i)` in closed form

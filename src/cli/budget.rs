@@ -40,7 +40,7 @@ const MAX_SITES: usize = 1_000_000;
 /// The command line of `quassay budget`.
 #[derive(Debug, clap::Args)]
 pub struct BudgetArgs {
-    /// The noise record (JSON, format quassay-noise v1 or v2).
+    /// The noise record (JSON, format quassay-noise v1, v2 or v3).
     #[arg(long, value_name = "NOISE.json")]
     pub noise: PathBuf,
     /// The lattice: chain:N, square:LxW (or square:L) or cubic:LxWxH (or cubic:L).
@@ -393,6 +393,13 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
         })
         .collect();
 
+    // (g) the longest correlation time, common to every source (stochastic statement only:
+    // the worst case does not depend on it).
+    let correlation: Vec<Answer> = whiches
+        .iter()
+        .map(|&w| planning::longest_correlation_time(&set, &sources, t, target, w))
+        .collect();
+
     // (e) the largest total incoherent rate, with an incoherent section.
     let rates: Option<Vec<Pair>> = prob.record.device.incoherent.as_ref().map(|_| {
         whiches
@@ -523,6 +530,14 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
             "bisection_relative_tolerance": planning::REL_TOL,
             "scale": by(&scale),
             "time_limit": by(&time),
+            "correlation_time": {
+                "averaged": answer_json(correlation[0]),
+                "single": answer_json(correlation[1]),
+                "meaning": "the longest correlation time, the same for every source, that keeps \
+                            the error within the target at the given time (noise drawn again \
+                            every tau during an evolution, docs/method.md section 1); \
+                            unlimited: static noise already does",
+            },
             "size": match (&size, &resize) {
                 (Some(v), _) => by(v),
                 (None, why) => json!({ "status": "not_available", "reason": why }),
@@ -547,6 +562,7 @@ pub fn run(args: &BudgetArgs) -> crate::Result<Outcome> {
             shot,
             &scale,
             &time,
+            &correlation,
             &size,
             &resize,
             &table_rows,
@@ -655,6 +671,7 @@ fn render_text(
     shot: f64,
     scale: &[Pair],
     time: &[Pair],
+    correlation: &[Answer],
     size: &Option<Vec<Pair>>,
     resize: &Option<String>,
     table: &[(usize, usize, Vec<Pair>)],
@@ -711,6 +728,22 @@ fn render_text(
     ));
     row(&mut s, "averaged (E_avg + E_shot)", &time[0], false, "");
     row(&mut s, "single evolution (E_1)", &time[1], false, "");
+    s.push_str(&format!(
+        "(g) longest correlation time of every source ({unit}; noise drawn again every tau)\n"
+    ));
+    for (label, a) in [
+        ("averaged (E_avg + E_shot)", correlation[0]),
+        ("single evolution (E_1)", correlation[1]),
+    ] {
+        let text = match a {
+            Answer::Unlimited => "any (static is within)".to_string(),
+            other => show_answer(other, false),
+        };
+        s.push_str(&format!(
+            "  {label:<28} {text:>14} {:>14} {:>12}\n",
+            "-", "-"
+        ));
+    }
     let side = match prob.geometry {
         Geometry::Chain => "chain length",
         Geometry::Square => "L of L x L",

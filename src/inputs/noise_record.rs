@@ -1,4 +1,4 @@
-//! Reader for noise records (JSON, format `quassay-noise` v1 and v2; docs/noise-record.md).
+//! Reader for noise records (JSON, format `quassay-noise` v1, v2 and v3; docs/noise-record.md).
 //!
 //! A noise record is the lab's description of the random local perturbations of its device.
 //! Everything the bounds certify rests on it, so the reader is strict: every key is known,
@@ -29,7 +29,7 @@ pub fn read_noise_record(path: &Path) -> crate::Result<NoiseRecord> {
     // A folder, FIFO or device is refused before it is read (reading a FIFO would block).
     let bytes = crate::inputs::regular::read_regular(
         path,
-        "a noise record (JSON, format quassay-noise v1 or v2)",
+        "a noise record (JSON, format quassay-noise v1, v2 or v3)",
     )?;
     let fail = |problems| Error::Input {
         kind: InputKind::NoiseRecord,
