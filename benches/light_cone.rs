@@ -3,7 +3,9 @@
 //! on every bond (an invented scenario), 50 times up to t = 5/J. Prints the wall time and the
 //! peak resident memory (VmHWM from /proc/self/status, Linux).
 //!
-//! Run: `cargo bench --bench light_cone`.
+//! Run: `cargo bench --bench light_cone`. With `QUASSAY_BENCH_WINDOWS=1` every source is drawn
+//! again every τ = t_max/50 = 0.1/J during the evolution (noise record version 3,
+//! docs/method.md §3 "Windows"), the case of the issue on windowed noise.
 
 use std::time::Instant;
 
@@ -21,6 +23,8 @@ fn peak_memory_kib() -> Option<u64> {
 
 fn main() {
     let start = Instant::now();
+    let windows = std::env::var_os("QUASSAY_BENCH_WINDOWS").is_some();
+    let tau = windows.then_some(0.1);
     let l = Lattice::regular(Geometry::Square, &[1000, 1000], Boundary::Open).unwrap();
     let mut inst: Vec<Instance> = (0..l.n_sites())
         .map(|s| Instance {
@@ -31,7 +35,7 @@ fn main() {
             family: Family::Uniform,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
-            correlation_time: None,
+            correlation_time: tau,
         })
         .collect();
     for (e, &[a, b]) in l.bonds().iter().enumerate() {
@@ -43,7 +47,7 @@ fn main() {
             family: Family::TwoPoint,
             mean_offset: 0.0,
             mean_offset_uncertainty: 0.0,
-            correlation_time: None,
+            correlation_time: tau,
         });
     }
     let sources: Vec<SourceData> = inst.iter().map(SourceData::from_instance).collect();
@@ -67,8 +71,12 @@ fn main() {
     let local = t0.elapsed();
     let last = out.last().unwrap();
     println!(
-        "lattice 1000x1000, {} sources, 50 times up to t = 5/J",
-        inst.len()
+        "lattice 1000x1000, {} sources, 50 times up to t = 5/J, {}",
+        inst.len(),
+        match tau {
+            Some(t) => format!("noise drawn again every {t}/J"),
+            None => "static noise".to_string(),
+        }
     );
     println!("setup (lattice, instances): {:.2} s", built.as_secs_f64());
     println!("local bounds, all times:    {:.2} s", local.as_secs_f64());

@@ -578,6 +578,31 @@ pub fn explain(body: &Value, view: &BodyView) -> Explanation {
         ),
         _ => {}
     }
+    // Format 1.4: declared correlation times, which the data do not test.
+    let windowed: Vec<String> = body["noise"]["sources"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .filter(|s| s["time_model"]["kind"] == "windows")
+        .map(|s| {
+            let c = &s["time_model"]["correlation_time"];
+            format!(
+                "{} (tau = {} {})",
+                s["name"].as_str().unwrap_or("?"),
+                c["value"].as_f64().map_or_else(|| "?".into(), short),
+                c["unit"].as_str().unwrap_or("?")
+            )
+        })
+        .collect();
+    if !windowed.is_empty() {
+        untested.push(format!(
+            "Correlation times are declared, not measured, for {}: the noise is taken to be drawn \
+             again in every window, which lowers the fluctuation and bias terms. The recorded \
+             data do not test this; a declared time shorter than the device's makes the \
+             intervals too narrow.",
+            windowed.join(", ")
+        ));
+    }
     for o in &view.observables {
         if o.shot_approximate {
             untested.push(format!(

@@ -381,6 +381,26 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
         c.loaded.model.redrawn.as_str().replace('_', " "),
         c.loaded.model.instances.len(),
     ));
+    // Noise drawn again during an evolution (record version 3): the distinct correlation
+    // times and how many instances have each.
+    let mut taus: Vec<(f64, usize)> = Vec::new();
+    for tau in c.loaded.model.instances.iter().filter_map(|i| i.correlation_time) {
+        match taus.iter_mut().find(|(t, _)| *t == tau) {
+            Some(e) => e.1 += 1,
+            None => taus.push((tau, 1)),
+        }
+    }
+    if !taus.is_empty() {
+        let parts: Vec<String> = taus
+            .iter()
+            .map(|(t, n)| format!("every {} {unit} for {n}", crate::numbers::short(*t)))
+            .collect();
+        s.push_str(&format!(
+            "noise drawn again during each evolution: {} instance(s) (declared correlation \
+             times, not tested by the data)\n",
+            parts.join(", ")
+        ));
+    }
     let data = c.bounds.observables.iter().find_map(|o| o.data.as_ref());
     match data {
         None => s.push_str(&format!(
