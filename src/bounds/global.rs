@@ -462,6 +462,9 @@ pub struct PointBounds {
     pub e_bias: f64,
     /// The fluctuation term of `E_avg` (0 when g is redrawn every shot).
     pub fluctuation: f64,
+    /// The same term for static noise (every correlation time removed), for the comparison
+    /// of format 1.4; equal to `fluctuation` when no source is drawn again.
+    pub fluctuation_static: f64,
     /// The route of that term; `None` when there is no term (every shot) or no route applies
     /// (then `fluctuation` is infinite).
     pub route: Option<FluctuationRoute>,
@@ -489,6 +492,7 @@ pub fn evaluate_point(inp: &PointInputs) -> PointBounds {
     let e_wc = worst_case(inp.sources, sens);
     let e_sys = systematic(inp.sources, sens);
     let e_bias = bias_global(inp.sources, inp.s_o, inp.t);
+    let linear = sens;
     let sens = &*fluctuation_sensitivities(inp.sources, sens, inp.s_o, inp.t);
     let one = fluctuation(inp.sources, sens, inp.p_single);
     let e_one = cap(inp.s_o, e_wc, e_sys + e_bias + one.value);
@@ -501,6 +505,13 @@ pub fn evaluate_point(inp: &PointInputs) -> PointBounds {
         }
     };
     let e_avg = cap(inp.s_o, e_wc, e_sys + e_bias + fluct);
+    let fluctuation_static = static_fluctuation(
+        inp.sources,
+        linear,
+        inp.t,
+        (inp.p, inp.redrawn, inp.realizations),
+        fluct,
+    );
     let (e_shot, shot_approximate) = match inp.shots {
         ShotData::Counts(c) => (shot_hoeffding(inp.s_o, c, inp.alpha), false),
         ShotData::StdErr(se) => (shot_normal(se, inp.alpha), true),
@@ -510,6 +521,7 @@ pub fn evaluate_point(inp: &PointInputs) -> PointBounds {
         e_sys,
         e_bias,
         fluctuation: fluct,
+        fluctuation_static,
         route,
         fluctuation_one: one.value,
         route_one: one.route,
@@ -519,6 +531,24 @@ pub fn evaluate_point(inp: &PointInputs) -> PointBounds {
         shot_approximate,
         half_width: e_avg + e_shot,
     }
+}
+
+/// The fluctuation term of `E_avg` that the same sensitivities would give if no source were
+/// drawn again during the evolution (the linear sensitivities in the sums of squares): for the
+/// certificate's comparison with static noise (format 1.4). `windowed`, the term actually
+/// used, when no source is windowed at `t` (then the two are the same number).
+pub fn static_fluctuation(
+    sources: &[SourceData],
+    linear: &[f64],
+    t: f64,
+    (p, redrawn, realizations): (f64, Redrawn, usize),
+    windowed: f64,
+) -> f64 {
+    if redrawn == Redrawn::EveryShot || !sources.iter().any(|s| s.windowed_at(t)) {
+        return windowed;
+    }
+    let r = fluctuation(sources, linear, p);
+    averaged_fluctuation(redrawn, r.value, realizations).unwrap_or(0.0)
 }
 
 /// `min(s_O, E_wc, rest)`, with NaN treated as no information (∞): how [`evaluate_point`]

@@ -245,7 +245,11 @@ pub fn build_body(
     // The three large members are moved in: `json!` would serialise (copy) them, doubling the
     // body's peak memory for runs with many points.
     if let Value::Object(m) = &mut body {
-        m.insert("observables".into(), observables_json(run, bounds));
+        let windowed = record.sources.iter().any(|s| s.correlation_time.is_some());
+        m.insert(
+            "observables".into(),
+            observables_json(run, bounds, windowed),
+        );
         m.insert("checks".into(), checks);
         m.insert("verdict".into(), verdict);
     }
@@ -380,7 +384,9 @@ fn noise_json(run: &RunOutline, record: &NoiseRecord, model: &NoiseModel) -> Val
     v
 }
 
-fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
+/// `windowed`: the record declares correlation times (format 1.4), so each observable also
+/// gets the fluctuation term static noise would have (`fluctuation_static`).
+fn observables_json(run: &RunOutline, bounds: &RunBounds, windowed: bool) -> Value {
     let list: Vec<Value> = run
         .observables
         .iter()
@@ -421,6 +427,9 @@ fn observables_json(run: &RunOutline, bounds: &RunBounds) -> Value {
             });
             if let Some(l) = &b.local {
                 v["e_avg_light_cone"] = column(l.iter().map(|x| x.e_avg));
+            }
+            if windowed {
+                v["fluctuation_static"] = column(p.iter().map(|x| x.fluctuation_static));
             }
             if let Some(t) = &b.term_by_term {
                 let forms = |i: usize| column(t.forms.iter().map(move |f| f[i] as f64));

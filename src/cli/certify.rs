@@ -384,7 +384,13 @@ fn summary_text(output: &Path, cert: &Certificate, c: &Computed, notes: &[String
     // Noise drawn again during an evolution (record version 3): the distinct correlation
     // times and how many instances have each.
     let mut taus: Vec<(f64, usize)> = Vec::new();
-    for tau in c.loaded.model.instances.iter().filter_map(|i| i.correlation_time) {
+    for tau in c
+        .loaded
+        .model
+        .instances
+        .iter()
+        .filter_map(|i| i.correlation_time)
+    {
         match taus.iter_mut().find(|(t, _)| *t == tau) {
             Some(e) => e.1 += 1,
             None => taus.push((tau, 1)),

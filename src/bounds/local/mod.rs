@@ -65,6 +65,8 @@ pub struct LocalTerms {
     pub bias_set: BiasSet,
     /// Fluctuation term of `E_avg` (0 when g is redrawn every shot) and its route.
     pub fluctuation: f64,
+    /// The same term for static noise (see `PointBounds::fluctuation_static`).
+    pub fluctuation_static: f64,
     pub route: Option<FluctuationRoute>,
     /// `r(p_single)` and its route.
     pub fluctuation_one: f64,
@@ -250,6 +252,13 @@ fn point_terms(
         }
     };
     let e_avg = cap(inp.s_o, e_wc, e_sys + e_bias + fluct);
+    let fluctuation_static = global::static_fluctuation(
+        &c.sources,
+        linear,
+        t,
+        (inp.p, inp.redrawn, inp.realizations),
+        fluct,
+    );
     let mut v_noise = 0.0;
     for (s, &e) in c.sources.iter().zip(sens) {
         if s.delta * e > 0.0 {
@@ -263,6 +272,7 @@ fn point_terms(
         e_bias,
         bias_set,
         fluctuation: fluct,
+        fluctuation_static,
         route,
         fluctuation_one: one.value,
         route_one: one.route,

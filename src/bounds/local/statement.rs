@@ -77,6 +77,7 @@ pub fn combine_all(
     p.e_sys = l.e_sys;
     p.e_bias = l.e_bias;
     p.fluctuation = l.fluctuation;
+    p.fluctuation_static = l.fluctuation_static;
     p.route = l.route;
     p.fluctuation_one = l.fluctuation_one;
     p.route_one = l.route_one;

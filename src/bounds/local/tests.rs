@@ -313,6 +313,7 @@ fn a_single_term_gives_exactly_the_light_cone_statement_of_that_term() {
         e_sys: 0.0,
         e_bias: 0.0,
         fluctuation: inf,
+        fluctuation_static: inf,
         route: None,
         fluctuation_one: inf,
         route_one: None,

@@ -39,6 +39,16 @@ pub(crate) fn figure(d: &ReportData, o: &ObservableColumns) -> Result<(String, S
             c
         }),
     ];
+    // Format 1.4: the fluctuation term of static noise, beside the windowed one.
+    if let Some(v) = &o.fluctuation_static {
+        let mut c = Curve::new(
+            "fluctuation term, static noise",
+            Dash::Short,
+            Marker::Triangle,
+        );
+        c.grey = 60;
+        curves.push((v, c));
+    }
     // Format 1.3: the device-error terms, each drawn when the certificate has it.
     let device = [
         (
@@ -108,7 +118,14 @@ pub(crate) fn figure(d: &ReportData, o: &ObservableColumns) -> Result<(String, S
          triangles), E_sys (short dashes, squares), E_shot (long dashes, crosses), and the \
          half-width E_avg + E_shot of the certified interval (thick grey line, open circles). \
          E_avg = min(s_O, E_wc, E_sys + E_bias + fluctuation), so the half-width can be less \
-         than the sum of the terms.{device}{notes}",
+         than the sum of the terms.{windows}{device}{notes}",
+        windows = if o.fluctuation_static.is_some() {
+            " The record declares correlation times (format 1.4): the fluctuation term is that \
+             of noise drawn again in every window; the grey short-dashed curve with triangles \
+             is the same term for static noise, for comparison (not part of the claim)."
+        } else {
+            ""
+        },
         name = escape(&o.name),
         device = if device_text.is_empty() {
             String::new()

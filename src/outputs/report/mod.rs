@@ -37,6 +37,8 @@ pub(crate) struct ObservableColumns {
     pub e_sys: Vec<f64>,
     pub e_bias: Vec<f64>,
     pub fluctuation: Vec<f64>,
+    /// Format 1.4: the fluctuation term static noise would give (`fluctuation_static`).
+    pub fluctuation_static: Option<Vec<f64>>,
     pub e_avg: Vec<f64>,
     pub e_shot: Vec<f64>,
     pub claim: String,
@@ -286,6 +288,11 @@ pub(crate) fn read_body(body: &Value, file: &Path) -> Result<ReportData> {
             e_shot: r.column(&format!("{p}/e_shot")),
             claim,
             data: data_bands(body, &p, times.len()),
+            fluctuation_static: optional_column(
+                body,
+                &format!("{p}/fluctuation_static"),
+                times.len(),
+            ),
             device: DeviceColumns {
                 incoherent: optional_column(body, &format!("{p}/e_incoherent"), times.len()),
                 preparation: optional_column(body, &format!("{p}/e_preparation"), times.len()),

@@ -182,6 +182,7 @@ mod tests {
             e_sys: vec![0.0; 2],
             e_bias: vec![0.0; 2],
             fluctuation: vec![0.0; 2],
+            fluctuation_static: None,
             e_avg: vec![0.05, 0.1],
             e_shot: vec![0.25, 0.1],
             claim: String::new(),
