@@ -531,3 +531,59 @@ fn a_short_correlation_time_certifies_verifies_and_is_reported_against_static_no
     assert!(page.contains("fluctuation term, static noise"));
     assert!(page.contains("declares correlation times"));
 }
+
+/// The fidelity bound of docs/method.md §4 with windows, on the one-spin scenario whose
+/// fidelity is known in closed form: from |+⟩|+⟩ with H = 0 and the noise `δ g(s) Z_0`, the
+/// state picks up the phase `φ = δ Σ_w g_w ℓ_w` on site 0, so `F = cos² φ = (1 + ⟨X_0⟩)/2`
+/// with `⟨X_0⟩ = cos 2φ` from the exact simulation. Over 1000 trajectories with τ = t_max/5,
+/// the number below `F_low(p)` stays under the binomial allowance (level 0.001), p = 0.5, 0.2,
+/// 0.05, and `F` is never below the worst-case bound.
+#[test]
+fn the_fidelity_bound_holds_for_windowed_noise_on_one_spin() {
+    use quassay::bounds::fidelity::fidelity_bound;
+    use quassay::bounds::global::SourceData;
+    let mut v = one_spin(Some(T_MAX / 5.0));
+    v["realizations"] = json!(1000);
+    let s = scenario_from_value(&v).unwrap();
+    let sim = simulate(&s, s.seed);
+    let model = s
+        .noise
+        .expand(&sim.run.lattice, sim.run.time_unit)
+        .unwrap();
+    let sources: Vec<SourceData> = model
+        .instances
+        .iter()
+        .map(SourceData::from_instance)
+        .collect();
+    let exact = &sim.truth.observables[0].exact;
+    let mut worst_ratio = 0.0f64;
+    for (k, &t) in sim.run.times.iter().enumerate().skip(1) {
+        let wc = fidelity_bound(&sources, t, 0.5);
+        for &p in &P_VALUES {
+            let b = fidelity_bound(&sources, t, p);
+            let allowed = binomial_critical(s.realizations as u64, p, LEVEL);
+            let mut below = 0u64;
+            for j in 0..s.realizations {
+                let f = 0.5 * (1.0 + exact[[j, k]]);
+                if f < b.f_low - SIM_TOL {
+                    below += 1;
+                }
+                if !b.vacuous && p == 0.5 {
+                    worst_ratio = worst_ratio.max((1.0 - f) / (1.0 - b.f_low));
+                }
+                // Worst case: D_wc = t Σ δ (b + m), F ≥ (1 − D_wc²/2)² when D_wc ≤ √2.
+                if wc.d_wc <= std::f64::consts::SQRT_2 {
+                    let f_wc = (1.0 - 0.5 * wc.d_wc * wc.d_wc).powi(2);
+                    assert!(f >= f_wc - SIM_TOL, "t = {t}: F = {f} below {f_wc}");
+                }
+            }
+            assert!(
+                below < allowed,
+                "t = {t}, p = {p}: {below} trajectories below F_low = {} (allowed {allowed})",
+                b.f_low
+            );
+        }
+    }
+    println!("one spin, τ = t_max/5: largest (1 − F)/(1 − F_low(0.5)) = {worst_ratio:.3}");
+    assert!(worst_ratio > 0.0);
+}
