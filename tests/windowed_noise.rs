@@ -546,10 +546,7 @@ fn the_fidelity_bound_holds_for_windowed_noise_on_one_spin() {
     v["realizations"] = json!(1000);
     let s = scenario_from_value(&v).unwrap();
     let sim = simulate(&s, s.seed);
-    let model = s
-        .noise
-        .expand(&sim.run.lattice, sim.run.time_unit)
-        .unwrap();
+    let model = s.noise.expand(&sim.run.lattice, sim.run.time_unit).unwrap();
     let sources: Vec<SourceData> = model
         .instances
         .iter()

@@ -235,11 +235,18 @@ fn point_terms(
         })
         .collect();
     let (e_bias, bias_set) = bias(inp.s_o, c, sens, class_of, &ln_phi, prefix);
-    // The sums of squares take each windowed source's fluctuation sensitivity; a pseudo-source
-    // takes that of its merged sensitivity, which is no smaller than the sum over its members
-    // (the squared greedy value is convex in e and 0 at 0, hence superadditive).
+    // The sums of squares take each windowed region source's fluctuation sensitivity. A
+    // pseudo-source keeps its merged linear sensitivity (the sum of its members' squares is at
+    // most the square of their sum): its total may exceed s_O·t, where the greedy maximum of
+    // one source no longer bounds the members' windows.
     let linear = sens;
-    let sens = &*global::fluctuation_sensitivities(&c.sources, linear, inp.s_o, t);
+    let sens = &*match global::fluctuation_sensitivities(&c.sources, linear, inp.s_o, t) {
+        std::borrow::Cow::Owned(mut v) => {
+            v[c.n_region..].copy_from_slice(&linear[c.n_region..]);
+            std::borrow::Cow::Owned(v)
+        }
+        borrowed => borrowed,
+    };
     let one = global::fluctuation(&c.sources, sens, inp.p_single);
     let e_one = cap(inp.s_o, e_wc, e_sys + e_bias + one.value);
     let (fluct, route) = match inp.redrawn {
