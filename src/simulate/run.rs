@@ -407,14 +407,45 @@ fn trajectory(
     psi0: &[Complex64],
     times: &[f64],
     stats: &mut Stats,
+    at: impl FnMut(usize, &[Complex64]),
+) {
+    piecewise_trajectory(h, &[], |_| None, psi0, times, stats, at);
+}
+
+/// One evolution under `first`, switched at each time of `edges` (increasing) to the operator
+/// `next(j)` gives for edge `j` (`None`: keep the current one); calls `at(k, ψ)` at every
+/// recorded time (a recorded time on an edge sees the state before the switch). Without edges
+/// this is the static evolution, step for step.
+fn piecewise_trajectory(
+    first: &Operator,
+    edges: &[f64],
+    mut next: impl FnMut(usize) -> Option<Operator>,
+    psi0: &[Complex64],
+    times: &[f64],
+    stats: &mut Stats,
     mut at: impl FnMut(usize, &[Complex64]),
 ) {
     let mut psi = psi0.to_vec();
     let mut work = Workspace::default();
+    let mut switched: Option<Operator> = None;
     let mut now = 0.0;
     let mut bound = 0.0;
     let mut drift = 0.0f64;
+    let mut next_edge = 0;
     for (k, &t) in times.iter().enumerate() {
+        while next_edge < edges.len() && edges[next_edge] < t {
+            let edge = edges[next_edge];
+            let h = switched.as_ref().unwrap_or(first);
+            let rep = evolve(h, &mut psi, edge - now, DEFAULT_TOLERANCE, &mut work);
+            now = edge;
+            stats.products += rep.products;
+            bound += rep.truncation_bound;
+            if let Some(op) = next(next_edge) {
+                switched = Some(op);
+            }
+            next_edge += 1;
+        }
+        let h = switched.as_ref().unwrap_or(first);
         let rep = evolve(h, &mut psi, t - now, DEFAULT_TOLERANCE, &mut work);
         now = t;
         stats.products += rep.products;
@@ -471,53 +502,29 @@ pub(super) fn draw_windows(
         .collect()
 }
 
-/// One evolution under noise that is drawn again at the window edges: `g` holds until the
-/// first edge, then each edge's draws replace their instances' values. Calls `at(k, ψ)` at
-/// every recorded time (a recorded time on an edge sees the state before the new draw acts).
+/// One evolution under noise that is drawn again at the window edges: `h` (built from `g`)
+/// holds until the first edge, then each edge's draws replace their instances' values.
 #[allow(clippy::too_many_arguments)]
 fn windowed_trajectory(
-    base: &PauliSum,
-    inst: &[TrueInstance],
+    h: &Operator,
+    (base, inst, n): (&PauliSum, &[TrueInstance], usize),
     g: &[f64],
     edges: &[(f64, Vec<usize>)],
     draws: &[Vec<f64>],
-    n: usize,
     psi0: &[Complex64],
     times: &[f64],
     stats: &mut Stats,
-    mut at: impl FnMut(usize, &[Complex64]),
+    at: impl FnMut(usize, &[Complex64]),
 ) {
-    let mut psi = psi0.to_vec();
-    let mut work = Workspace::default();
+    let edge_times: Vec<f64> = edges.iter().map(|(t, _)| *t).collect();
     let mut current = g.to_vec();
-    let mut h = noisy_operator(base, inst, &current, n);
-    let mut now = 0.0;
-    let mut bound = 0.0;
-    let mut drift = 0.0f64;
-    let mut next_edge = 0;
-    for (k, &t) in times.iter().enumerate() {
-        while next_edge < edges.len() && edges[next_edge].0 < t {
-            let (edge, who) = &edges[next_edge];
-            let rep = evolve(&h, &mut psi, edge - now, DEFAULT_TOLERANCE, &mut work);
-            now = *edge;
-            stats.products += rep.products;
-            bound += rep.truncation_bound;
-            for (&i, &v) in who.iter().zip(&draws[next_edge]) {
-                current[i] = v;
-            }
-            h = noisy_operator(base, inst, &current, n);
-            next_edge += 1;
+    let next = |j: usize| {
+        for (&i, &v) in edges[j].1.iter().zip(&draws[j]) {
+            current[i] = v;
         }
-        let rep = evolve(&h, &mut psi, t - now, DEFAULT_TOLERANCE, &mut work);
-        now = t;
-        stats.products += rep.products;
-        bound += rep.truncation_bound;
-        drift = drift.max((super::propagate::norm(&psi) - 1.0).abs());
-        at(k, &psi);
-    }
-    stats.evolutions += 1;
-    stats.max_truncation_bound = stats.max_truncation_bound.max(bound);
-    stats.max_norm_drift = stats.max_norm_drift.max(drift);
+        Some(noisy_operator(base, inst, &current, n))
+    };
+    piecewise_trajectory(h, &edge_times, next, psi0, times, stats, at);
 }
 
 pub(super) struct RealizationResult {
@@ -633,7 +640,15 @@ fn run_simulation(s: &Scenario, seed: u64, cap: Option<u64>) -> Result<Simulatio
             trajectory(h, psi0, &s.times, st, at);
         } else {
             windowed_trajectory(
-                &base, &instances, g, &edges, windows, n, psi0, &s.times, st, at,
+                h,
+                (&base, &instances, n),
+                g,
+                &edges,
+                windows,
+                psi0,
+                &s.times,
+                st,
+                at,
             );
         }
     };
