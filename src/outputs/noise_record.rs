@@ -387,4 +387,18 @@ mod tests {
         assert!(text.contains("\"calibration\": {}\n"));
         assert_eq!(parse_noise_record(&text).unwrap(), r);
     }
+
+    /// Version 3: a correlation time is written after the offsets and reads back equal.
+    #[test]
+    fn a_correlation_time_reads_back_equal() {
+        use crate::model::units::TimeUnit;
+        let mut r = example();
+        r.format_version = 3;
+        r.sources[0].correlation_time = Some((0.1 + 0.2, TimeUnit::Ns));
+        let text = to_json_string(&r);
+        assert!(text.contains(
+            "\"mean_offset_uncertainty\": 0.0,\n      \"correlation_time\": {\"value\": 0.30000000000000004, \"unit\": \"ns\"}\n"
+        ));
+        assert_eq!(parse_noise_record(&text).unwrap(), r);
+    }
 }
