@@ -728,22 +728,6 @@ fn render_text(
     ));
     row(&mut s, "averaged (E_avg + E_shot)", &time[0], false, "");
     row(&mut s, "single evolution (E_1)", &time[1], false, "");
-    s.push_str(&format!(
-        "(g) longest correlation time of every source ({unit}; noise drawn again every tau)\n"
-    ));
-    for (label, a) in [
-        ("averaged (E_avg + E_shot)", correlation[0]),
-        ("single evolution (E_1)", correlation[1]),
-    ] {
-        let text = match a {
-            Answer::Unlimited => "any (static is within)".to_string(),
-            other => show_answer(other, false),
-        };
-        s.push_str(&format!(
-            "  {label:<28} {text:>14} {:>14} {:>12}\n",
-            "-", "-"
-        ));
-    }
     let side = match prob.geometry {
         Geometry::Chain => "chain length",
         Geometry::Square => "L of L x L",
@@ -792,6 +776,22 @@ fn render_text(
     }
     if let Some(r) = rates {
         rate_rows(&mut s, set, r, unit);
+    }
+    s.push_str(&format!(
+        "(g) longest correlation time of every source ({unit}; noise drawn again every tau)\n"
+    ));
+    for (label, a) in [
+        ("averaged (E_avg + E_shot)", correlation[0]),
+        ("single evolution (E_1)", correlation[1]),
+    ] {
+        let text = match a {
+            Answer::Unlimited => "any (static is within)".to_string(),
+            other => show_answer(other, false),
+        };
+        s.push_str(&format!(
+            "  {label:<28} {text:>14} {:>14} {:>12}\n",
+            "-", "-"
+        ));
     }
     s.push_str(
         "\nstochastic: the global bounds of docs/method.md §3 (cancellation between independent \
