@@ -584,3 +584,23 @@ fn the_fidelity_bound_holds_for_windowed_noise_on_one_spin() {
     println!("one spin, τ = t_max/5: largest (1 − F)/(1 − F_low(0.5)) = {worst_ratio:.3}");
     assert!(worst_ratio > 0.0);
 }
+
+/// The scenario reader refuses more than 10⁴ windows per source, and windows beside device
+/// sections, naming the correlation time.
+#[test]
+fn the_scenario_reader_limits_the_windows() {
+    let v = one_spin(Some(T_MAX / 1e5));
+    let p = scenario_from_value(&v).unwrap_err();
+    let text = format!("{p:?}");
+    assert!(
+        text.contains("/noise/sources/0/correlation_time") && text.contains("windows"),
+        "{text}"
+    );
+    let mut v = one_spin(Some(T_MAX / 5.0));
+    v["noise"]["preparation"] = json!([{"acts_on": "each_site", "trace_distance": 0.01, "trace_distance_uncertainty": 0.0}]);
+    let text = format!("{:?}", scenario_from_value(&v).unwrap_err());
+    assert!(
+        text.contains("/noise/sources/0/correlation_time") && text.contains("device sections"),
+        "{text}"
+    );
+}

@@ -42,6 +42,9 @@ pub const MAX_SHOTS: u64 = 1_000_000_000_000;
 /// Largest number of evolutions of flipped initial states, `R · distinct patterns`, with a
 /// preparation error and noise not redrawn every shot (checked once the patterns are drawn).
 pub const MAX_PATTERN_EVOLUTIONS: u64 = 1_000_000;
+/// Most windows per source before the last time when the noise is drawn again during an
+/// evolution (`t_max/τ`): each is one more draw and one more operator per evolution.
+pub const MAX_WINDOWS: f64 = 10_000.0;
 /// Most sites of a scenario with device errors (density matrices of 4^n entries).
 pub const MAX_DEVICE_SITES: usize = 8;
 

@@ -211,6 +211,34 @@ pub fn scenario_from_value(value: &Value) -> Result<Scenario, Vec<Problem>> {
             );
         }
     }
+    // Windows: each is one more draw and one more operator per evolution.
+    if let (Some(t), Some(unit)) = (&times, time_unit) {
+        let t_max = t.iter().fold(0.0f64, |m, &x| m.max(x));
+        for (key, rec) in [
+            ("noise", declared.as_ref().map(|d| &d.0)),
+            ("true_noise", truth.as_ref().map(|t| &t.0)),
+        ] {
+            let Some(rec) = rec else { continue };
+            if key == "true_noise" && !top.contains_key("true_noise") {
+                continue;
+            }
+            for (i, src) in rec.sources.iter().enumerate() {
+                if let Some((tau, u)) = src.correlation_time {
+                    let windows = t_max / (tau * u.factor_to(unit));
+                    if windows > MAX_WINDOWS {
+                        rd.push(
+                            format!("/{key}/sources/{i}/correlation_time"),
+                            format!(
+                                "gives {windows:.0} windows before the last time; the \
+                                 simulator draws at most {MAX_WINDOWS:.0} per source and \
+                                 evolution: use a longer correlation time or a shorter run"
+                            ),
+                        );
+                    }
+                }
+            }
+        }
+    }
     if let Some((record, _)) = &declared {
         device_limits(&mut rd, record, &lattice, &observables, top);
         // Windowed noise is simulated with state vectors only (docs/scenario.md).
