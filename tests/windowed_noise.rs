@@ -596,6 +596,18 @@ fn the_scenario_reader_limits_the_windows() {
         text.contains("/noise/sources/0/correlation_time") && text.contains("windows"),
         "{text}"
     );
+    // A true-noise source of its own is named where the scenario writes it.
+    let mut v = one_spin(Some(T_MAX / 5.0));
+    let mut extra = v["noise"]["sources"][0].clone();
+    extra["name"] = json!("fast extra");
+    extra["correlation_time"] = json!({"value": T_MAX / 1e5, "unit": "us"});
+    v["true_noise"] = json!({"extra_sources": [extra]});
+    let text = format!("{:?}", scenario_from_value(&v).unwrap_err());
+    assert!(
+        text.contains("/true_noise/extra_sources/0/correlation_time")
+            && !text.contains("/noise/sources/0/correlation_time"),
+        "{text}"
+    );
     let mut v = one_spin(Some(T_MAX / 5.0));
     v["noise"]["preparation"] = json!([{"acts_on": "each_site", "trace_distance": 0.01, "trace_distance_uncertainty": 0.0}]);
     let text = format!("{:?}", scenario_from_value(&v).unwrap_err());

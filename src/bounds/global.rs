@@ -149,29 +149,19 @@ pub fn bias_from_ln_sum(s_o: f64, ln_sum: f64) -> f64 {
 /// (callers with many observables per time compute it once per time).
 pub fn bias_ln_sum(sources: &[SourceData], t: f64) -> f64 {
     let mut ln_sum = 0.0;
-    // Runs of instances with the same family and δ (the usual case: one source expanded per
-    // site) reuse the last value of ln φ; the value and the order of summation are unchanged,
-    // only the quadrature of a truncated normal is not repeated.
-    let mut last: Option<(Family, f64, f64)> = None;
-    let mut last_windowed: Option<(Family, f64, f64, f64)> = None;
+    // Runs of instances with the same family, δ and correlation time (the usual case: one
+    // source expanded per site) reuse the last value of ln φ; the value and the order of
+    // summation are unchanged, only the quadrature of a truncated normal is not repeated.
+    // A source drawn again during [0, t] contributes Σ_w ln φ(2δℓ_w) (docs/method.md §3,
+    // "Windows"); `windows::ln_phi` gives exactly ln φ(2tδ) for the others.
+    let mut last: Option<(Family, f64, Option<f64>, f64)> = None;
     for s in sources {
-        let y = 2.0 * t * s.delta;
-        if y > 0.0 && s.windowed_at(t) {
-            // Windows: Σ_w ln φ(2δℓ_w) (docs/method.md §3, "Windows"), reused along runs of
-            // equal (family, δ, τ) as below.
-            let tau = s.window.unwrap_or(t);
-            let v = match last_windowed {
-                Some((f, d, lt, v)) if f == s.family && d == s.delta && lt == tau => v,
-                _ => super::windows::ln_phi(&s.family, s.delta, Some(tau), t),
-            };
-            last_windowed = Some((s.family, s.delta, tau, v));
-            ln_sum += v;
-        } else if y > 0.0 {
+        if 2.0 * t * s.delta > 0.0 {
             let v = match last {
-                Some((f, ly, v)) if f == s.family && ly == y => v,
-                _ => family::ln_phi(&s.family, y),
+                Some((f, d, w, v)) if f == s.family && d == s.delta && w == s.window => v,
+                _ => super::windows::ln_phi(&s.family, s.delta, s.window, t),
             };
-            last = Some((s.family, y, v));
+            last = Some((s.family, s.delta, s.window, v));
             ln_sum += v;
         }
     }

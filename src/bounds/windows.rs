@@ -45,12 +45,18 @@ pub fn split(tau: f64, t: f64) -> Option<(u64, f64)> {
     Some((k as u64, last.min(tau)))
 }
 
+/// `(τ, full, last)` of [`split`] when `tau` is given and below `t`.
+fn windows_of(tau: Option<f64>, t: f64) -> Option<(f64, u64, f64)> {
+    let tau = tau?;
+    split(tau, t).map(|(full, last)| (tau, full, last))
+}
+
 /// `√(Σ_w ℓ_w²)` for the windows of `tau` in `[0, t]` (`t` itself when `tau ≥ t`): the
 /// effective time of the sums of squares in the global statement and the fidelity bound.
 pub fn quadratic_time(tau: Option<f64>, t: f64) -> f64 {
-    match tau.and_then(|tau| split(tau, t)) {
+    match windows_of(tau, t) {
         None => t,
-        Some((full, last)) => (full as f64 * tau.unwrap_or(t).powi(2) + last * last).sqrt(),
+        Some((tau, full, last)) => (full as f64 * tau * tau + last * last).sqrt(),
     }
 }
 
@@ -61,8 +67,7 @@ pub fn quadratic_time(tau: Option<f64>, t: f64) -> f64 {
 /// vector, and `Σ x²` is Schur-convex, so it gives the maximum. `e` itself when `tau` is
 /// `None` or `≥ t`.
 pub fn fluctuation_sensitivity(e: f64, s_o: f64, tau: Option<f64>, t: f64) -> f64 {
-    let Some(tau) = tau else { return e };
-    let Some((full, last)) = split(tau, t) else {
+    let Some((tau, full, last)) = windows_of(tau, t) else {
         return e;
     };
     if !(e > 0.0 && e.is_finite()) {
@@ -95,9 +100,9 @@ pub fn ln_phi(f: &Family, delta: f64, tau: Option<f64>, t: f64) -> f64 {
             0.0
         }
     };
-    match tau.and_then(|tau| split(tau, t)) {
+    match windows_of(tau, t) {
         None => at(t),
-        Some((full, last)) => full as f64 * at(tau.unwrap_or(t)) + at(last),
+        Some((tau, full, last)) => full as f64 * at(tau) + at(last),
     }
 }
 

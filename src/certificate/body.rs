@@ -215,7 +215,8 @@ pub fn build_body(
     }
     // Format 1.4: sources drawn again during an evolution (record version 3, docs/method.md
     // §1): every source states its time model; the assumptions and gaps say what it covers.
-    if record.sources.iter().any(|s| s.correlation_time.is_some()) {
+    let windowed = record.sources.iter().any(|s| s.correlation_time.is_some());
+    if windowed {
         body["format_minor"] = json!(FORMAT_MINOR_WINDOWS);
         body["noise"]["format_version"] = json!(record.format_version);
         if let Value::Array(a) = &mut body["noise"]["sources"] {
@@ -245,7 +246,6 @@ pub fn build_body(
     // The three large members are moved in: `json!` would serialise (copy) them, doubling the
     // body's peak memory for runs with many points.
     if let Value::Object(m) = &mut body {
-        let windowed = record.sources.iter().any(|s| s.correlation_time.is_some());
         m.insert(
             "observables".into(),
             observables_json(run, bounds, windowed),

@@ -23,7 +23,6 @@ mod term_by_term;
 
 use std::collections::HashMap;
 
-use super::family;
 use super::global::{self, FluctuationRoute, SourceData};
 use super::light_cone::{Exposure, Unavailable, WalkGraph};
 use super::windows;
@@ -222,16 +221,10 @@ fn point_terms(
     let ln_phi: Vec<f64> = reps
         .iter()
         .map(|&i| {
+            // ln φ(2tδ), or Σ_w ln φ(2δℓ_w) for a source drawn again during [0, t]
+            // (docs/method.md §3, "Windows").
             let s = &c.sources[i];
-            let y = 2.0 * t * s.delta;
-            if s.windowed_at(t) {
-                // Σ_w ln φ(2δℓ_w): the source's windows in the product (docs/method.md §3).
-                windows::ln_phi(&s.family, s.delta, s.window, t)
-            } else if y > 0.0 {
-                family::ln_phi(&s.family, y)
-            } else {
-                0.0
-            }
+            windows::ln_phi(&s.family, s.delta, s.window, t)
         })
         .collect();
     let (e_bias, bias_set) = bias(inp.s_o, c, sens, class_of, &ln_phi, prefix);

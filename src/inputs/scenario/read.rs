@@ -211,59 +211,17 @@ pub fn scenario_from_value(value: &Value) -> Result<Scenario, Vec<Problem>> {
             );
         }
     }
-    // Windows: each is one more draw and one more operator per evolution.
-    if let (Some(t), Some(unit)) = (&times, time_unit) {
-        let t_max = t.iter().fold(0.0f64, |m, &x| m.max(x));
-        for (key, rec) in [
-            ("noise", declared.as_ref().map(|d| &d.0)),
-            ("true_noise", truth.as_ref().map(|t| &t.0)),
-        ] {
-            let Some(rec) = rec else { continue };
-            if key == "true_noise" && !top.contains_key("true_noise") {
-                continue;
-            }
-            for (i, src) in rec.sources.iter().enumerate() {
-                if let Some((tau, u)) = src.correlation_time {
-                    let windows = t_max / (tau * u.factor_to(unit));
-                    if windows > MAX_WINDOWS {
-                        rd.push(
-                            format!("/{key}/sources/{i}/correlation_time"),
-                            format!(
-                                "gives {windows:.0} windows before the last time; the \
-                                 simulator draws at most {MAX_WINDOWS:.0} per source and \
-                                 evolution: use a longer correlation time or a shorter run"
-                            ),
-                        );
-                    }
-                }
-            }
-        }
-    }
     if let Some((record, _)) = &declared {
         device_limits(&mut rd, record, &lattice, &observables, top);
-        // Windowed noise is simulated with state vectors only (docs/scenario.md).
-        if !record.device.is_empty() {
-            for (key, rec) in [
-                ("noise", Some(record)),
-                ("true_noise", truth.as_ref().map(|t| &t.0)),
-            ] {
-                let Some(rec) = rec else { continue };
-                if key == "true_noise" && !top.contains_key("true_noise") {
-                    continue;
-                }
-                for (i, src) in rec.sources.iter().enumerate() {
-                    if src.correlation_time.is_some() {
-                        rd.push(
-                            format!("/{key}/sources/{i}/correlation_time"),
-                            "cannot be rehearsed beside device sections (the simulator evolves \
-                             density matrices only under noise constant during an evolution); \
-                             remove the correlation time or the device sections",
-                        );
-                    }
-                }
-            }
-        }
     }
+    window_limits(
+        &mut rd,
+        declared.as_ref().map(|d| &d.0),
+        truth.as_ref().map(|t| &t.0),
+        times.as_deref(),
+        time_unit,
+        top,
+    );
     if !rd.problems.is_empty() {
         return Err(fix_root(rd.problems));
     }
@@ -323,6 +281,78 @@ pub fn scenario_from_value(value: &Value) -> Result<Scenario, Vec<Problem>> {
             "/",
             "is incomplete; see the other messages",
         )]),
+    }
+}
+
+/// Every source the simulator draws, with the pointer to write in a message: the declared
+/// record's, then those the true noise gives itself (`true_noise/sources`, or its
+/// `extra_sources` after the declared ones; a true noise built by `scale` alone has copies of
+/// the declared sources, already named under `/noise`).
+fn simulated_sources<'a>(
+    declared: Option<&'a crate::model::NoiseRecord>,
+    truth: Option<&'a crate::model::NoiseRecord>,
+    top: &serde_json::Map<String, Value>,
+) -> Vec<(String, &'a crate::model::NoiseSource)> {
+    let mut out: Vec<(String, &crate::model::NoiseSource)> = Vec::new();
+    let n_declared = declared.map_or(0, |d| d.sources.len());
+    if let Some(d) = declared {
+        for (i, s) in d.sources.iter().enumerate() {
+            out.push((format!("/noise/sources/{i}"), s));
+        }
+    }
+    let own = top.get("true_noise").and_then(Value::as_object);
+    if let (Some(t), Some(own)) = (truth, own) {
+        for (i, s) in t.sources.iter().enumerate() {
+            if own.contains_key("sources") {
+                out.push((format!("/true_noise/sources/{i}"), s));
+            } else if i >= n_declared {
+                out.push((format!("/true_noise/extra_sources/{}", i - n_declared), s));
+            }
+        }
+    }
+    out
+}
+
+/// What a scenario with correlation times may not do (docs/simulator.md, "Randomness"): more
+/// than [`MAX_WINDOWS`] windows of one source before the last time (each is one more draw and
+/// one more operator per evolution), or windows beside device sections (density matrices are
+/// evolved only under noise constant during an evolution).
+fn window_limits(
+    rd: &mut Reader,
+    declared: Option<&crate::model::NoiseRecord>,
+    truth: Option<&crate::model::NoiseRecord>,
+    times: Option<&[f64]>,
+    time_unit: Option<crate::model::units::TimeUnit>,
+    top: &serde_json::Map<String, Value>,
+) {
+    let device = declared.is_some_and(|d| !d.device.is_empty());
+    let t_max = times.map(|t| t.iter().fold(0.0f64, |m, &x| m.max(x)));
+    for (at, src) in simulated_sources(declared, truth, top) {
+        let Some((tau, u)) = src.correlation_time else {
+            continue;
+        };
+        let at = format!("{at}/correlation_time");
+        if device {
+            rd.push(
+                &at,
+                "cannot be rehearsed beside device sections (the simulator evolves density \
+                 matrices only under noise constant during an evolution); remove the \
+                 correlation time or the device sections",
+            );
+        }
+        if let (Some(t_max), Some(unit)) = (t_max, time_unit) {
+            let windows = t_max / (tau * u.factor_to(unit));
+            if windows > MAX_WINDOWS {
+                rd.push(
+                    &at,
+                    format!(
+                        "gives {windows:.0} windows before the last time; the simulator draws \
+                         at most {MAX_WINDOWS:.0} per source and evolution: use a longer \
+                         correlation time or a shorter run"
+                    ),
+                );
+            }
+        }
     }
 }
 

@@ -10,9 +10,8 @@ use crate::model::device::{
     AppliesTo, Channel, ChannelSpec, DeviceRecord, Jump, Preparation, RateUnit, Readout,
     ReadoutEntry, SiteSet,
 };
-use crate::model::units::TimeUnit;
 
-use super::values::{choice, integer, kind, non_negative, object, positive, string};
+use super::values::{choice, integer, kind, non_negative, object, positive, string, time_unit};
 use super::*;
 
 const CHANNEL_FIELDS: &[Field] = &[
@@ -303,7 +302,7 @@ fn times_spec(
         "time_unit",
         "\"s\", \"ms\", \"us\" or \"ns\"",
     )
-    .and_then(|u| time_unit(ctx, u, &at("time_unit")));
+    .and_then(|u| time_unit(ctx, u, &at("time_unit"), "a time unit"));
     let (t1, t2, u1, u2, unit) = (t1?, t2?, u1?, u2?, unit?);
     let mut ok = true;
     if u1 >= t1 {
@@ -343,11 +342,6 @@ fn times_spec(
 fn rate_unit(ctx: &mut Ctx, v: &Value, path: &str) -> Option<RateUnit> {
     let names: Vec<&str> = RateUnit::ALL.iter().map(|(_, s)| *s).collect();
     choice(ctx, v, path, &names, "a rate unit").and_then(RateUnit::parse)
-}
-
-fn time_unit(ctx: &mut Ctx, v: &Value, path: &str) -> Option<TimeUnit> {
-    let names: Vec<&str> = TimeUnit::ALL.iter().map(|(_, s)| *s).collect();
-    choice(ctx, v, path, &names, "a time unit").and_then(TimeUnit::parse)
 }
 
 fn site_set(ctx: &mut Ctx, v: &Value, path: &str) -> Option<SiteSet> {

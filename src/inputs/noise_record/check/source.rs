@@ -8,7 +8,9 @@ use crate::inputs::noise_record::pointer::{child_index, child_key};
 use crate::model::noise::{ActsOn, Amplitude, NoiseSource};
 
 use super::distribution::distribution;
-use super::values::{choice, integer, kind, non_negative, number, object, positive, string};
+use super::values::{
+    choice, integer, kind, non_negative, number, object, positive, string, time_unit,
+};
 use super::*;
 use crate::model::units::TimeUnit;
 
@@ -144,15 +146,12 @@ fn correlation_time(ctx: &mut Ctx, v: &Value, path: &str) -> Option<(f64, TimeUn
         )
     });
     let unit = map.get("unit").and_then(|u| {
-        let names: Vec<&str> = TimeUnit::ALL.iter().map(|(_, s)| *s).collect();
-        choice(
+        time_unit(
             ctx,
             u,
             &child_key(path, "unit"),
-            &names,
             "the unit of the correlation time",
         )
-        .and_then(TimeUnit::parse)
     });
     Some((value?, unit?))
 }

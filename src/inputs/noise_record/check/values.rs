@@ -5,6 +5,7 @@
 use serde_json::{Map, Value};
 
 use crate::inputs::noise_record::pointer::{child_key, suggest};
+use crate::model::units::TimeUnit;
 
 use super::*;
 
@@ -141,6 +142,12 @@ pub(super) fn integer(v: &Value) -> Option<u64> {
         Some(x) if x >= 0.0 && x.fract() == 0.0 && x <= 9_007_199_254_740_992.0 => Some(x as u64),
         _ => None,
     }
+}
+
+/// A time unit (`s`, `ms`, `us`, `ns`), spelled as in files.
+pub(super) fn time_unit(ctx: &mut Ctx, v: &Value, path: &str, hint: &str) -> Option<TimeUnit> {
+    let names: Vec<&str> = TimeUnit::ALL.iter().map(|(_, s)| *s).collect();
+    choice(ctx, v, path, &names, hint).and_then(TimeUnit::parse)
 }
 
 /// A string that must be one of `choices`; reports a suggestion when close to one.
